@@ -51,9 +51,21 @@ class FrequencyAlgebra:
         """exp(-s * delay_s)."""
         return np.exp(-self.s * delay_s) if delay_s > 0 else 1.0
 
+    def tf(self, num, den):
+        """The rational block num(s)/den(s), coefficients highest power first."""
+        return np.polyval(num, self.s) / np.polyval(den, self.s)
+
+    @staticmethod
+    def feedback(forward, back):
+        """forward / (1 + forward * back)."""
+        return forward / (1.0 + forward * back)
+
 
 class ControlAlgebra:
-    """Blocks as python-control transfer functions; delays as Pade approximants.
+    """Blocks as python-control state-space systems; delays as Pade approximants.
+
+    Composition uses series, parallel and feedback interconnections only, so no
+    polynomial division ever inflates the order.
 
     Parameters
     ----------
@@ -61,35 +73,58 @@ class ControlAlgebra:
         Order of the Pade approximant of every delay (numerator and denominator).
     """
 
-    def __init__(self, pade_order: int = 6):
+    def __init__(self, pade_order: int = 5):
         import control  # interop only: never on the hot path
 
         self._control = control
         self.pade_order = pade_order
-        self.s = control.tf("s")
+        self.s = None
 
     def delay(self, delay_s: float):
         """Pade approximant of exp(-s * delay_s)."""
         if delay_s <= 0:
-            return self._control.tf([1.0], [1.0])
+            return 1.0
         num, den = self._control.pade(delay_s, self.pade_order)
-        return self._control.tf(num, den)
+        return self.tf(num, den)
+
+    def tf(self, num, den):
+        """The rational block num(s)/den(s) as a balanced state-space system.
+
+        Companion forms of Pade approximants span tens of decades; a diagonal
+        similarity (LAPACK's balancing, via scipy) keeps the realisation usable.
+        """
+        from scipy.linalg import matrix_balance
+        from scipy.signal import tf2ss
+
+        a, b, c, d = tf2ss(np.asarray(num, float), np.asarray(den, float))
+        if a.size:
+            _, (scale, _) = matrix_balance(a, permute=False, separate=True)
+            a = a * (1.0 / scale)[:, None] * scale[None, :]
+            b = b / scale[:, None]
+            c = c * scale[None, :]
+        return self._control.ss(a, b, c, d)
+
+    def feedback(self, forward, back):
+        """forward / (1 + forward * back) as a negative-feedback interconnection."""
+        if not isinstance(forward, self._control.StateSpace):
+            forward = self._control.ss([], [], [], [[forward]])
+        return self._control.feedback(forward, back)
 
 
-def lowpass(s, corner_hz: float):
+def lowpass(alg, corner_hz: float):
     """First-order low-pass 1/(1 + s/wc); 1 when ``corner_hz`` is 0."""
-    return 1.0 if corner_hz <= 0 else 1.0 / (1.0 + s / (2.0 * math.pi * corner_hz))
+    return 1.0 if corner_hz <= 0 else alg.tf([1.0], [1.0 / (2.0 * math.pi * corner_hz), 1.0])
 
 
-def notch(s, centre_hz: float, zeta_zero: float, zeta_pole: float):
+def notch(alg, centre_hz: float, zeta_zero: float, zeta_pole: float):
     """(s^2 + 2 zz wn s + wn^2) / (s^2 + 2 zp wn s + wn^2)."""
     wn = 2.0 * math.pi * centre_hz
-    return (s * s + 2.0 * zeta_zero * wn * s + wn * wn) / (s * s + 2.0 * zeta_pole * wn * s + wn * wn)
+    return alg.tf([1.0, 2.0 * zeta_zero * wn, wn * wn], [1.0, 2.0 * zeta_pole * wn, wn * wn])
 
 
-def pi_controller(s, kp: float, ki: float):
+def pi_controller(alg, kp: float, ki: float):
     """kp + ki/s."""
-    return kp + ki / s if ki > 0 else kp + 0.0 * s
+    return alg.tf([kp, ki], [1.0, 0.0]) if ki > 0 else kp
 
 
 class CascadeModel:
@@ -109,62 +144,69 @@ class CascadeModel:
         self.axis = axis
         self.gains = gains
         self.alg = algebra
-        self.s = algebra.s
         self.delays_s = axis.drive.loop_delays_s()
 
     # --- mechanics: motor/load speed per motor/load torque -----------------------------
     @cached_property
-    def _mech(self):
-        a, s = self.axis, self.s
-        zm = a.motor.inertia_kgm2 * s + a.motor.viscous_friction_nm_s_per_rad
-        zl = a.load_inertia_kgm2 * s + a.load_viscous_nm_s_per_rad
+    def _mech_poly(self):
+        """Numerators (w_m/T_m, w_m/T_l, w_l/T_m, w_l/T_l, s*w_m/T_m) over one denominator."""
+        a = self.axis
+        jm, bm = a.motor.inertia_kgm2, a.motor.viscous_friction_nm_s_per_rad
+        jl, bl = a.load_inertia_kgm2, a.load_viscous_nm_s_per_rad
         if not a.load.compliant:
-            m = 1.0 / (zm + zl)
-            return m, -m, m, -m
-        # Multiply the shaft (c + k/s) through by s to keep every term polynomial.
-        ks = a.damping_nm_s_per_rad * s + a.stiffness_nm_per_rad
-        det = s * zm * zl + ks * (zm + zl)
-        return (s * zl + ks) / det, -ks / det, ks / det, -(s * zm + ks) / det
+            den = [jm + jl, bm + bl]
+            return [1.0], [-1.0], [1.0], [-1.0], [1.0, 0.0], den
+        c, k = a.damping_nm_s_per_rad, a.stiffness_nm_per_rad
+        # (Zm ZL + Ks (Zm + ZL)) with Ks = c + k/s, multiplied through by s.
+        den = np.polyadd(np.polymul([jm, bm, 0.0], [jl, bl]), np.polymul([c, k], [jm + jl, bm + bl]))
+        n_mm = [jl, bl + c, k]
+        n_ll = [-jm, -(bm + c), -k]
+        return n_mm, [-c, -k], [c, k], n_ll, [jl, bl + c, k, 0.0], den
 
-    @property
+    def _mech(self, index: int):
+        p = self._mech_poly
+        return self.alg.tf(p[index], p[5])
+
+    @cached_property
     def motor_speed_per_torque(self):
         """w_m / T_m, rad/s per N*m."""
-        return self._mech[0]
+        return self._mech(0)
 
-    @property
+    @cached_property
     def motor_speed_per_load_torque(self):
         """w_m / T_load (load torque reflected to the motor), rad/s per N*m."""
-        return self._mech[1]
+        return self._mech(1)
+
+    @cached_property
+    def integrator(self):
+        """1/s."""
+        return self.alg.tf([1.0], [1.0, 0.0])
 
     # --- current loop ---------------------------------------------------------------
     @cached_property
-    def current_controller(self):
-        pi = self.gains.current.pi
-        return pi_controller(self.s, pi.kp, pi.ki)
-
-    @cached_property
     def current_forward(self):
         """Ci * Di: voltage applied per current error, V/A."""
-        return self.current_controller * self.alg.delay(self.delays_s[0])
+        pi = self.gains.current.pi
+        return pi_controller(self.alg, pi.kp, pi.ki) * self.alg.delay(self.delays_s[0])
 
     @cached_property
     def current_feedback_filter(self):
-        return lowpass(self.s, self.axis.drive.current_filter_hz)
+        return lowpass(self.alg, self.axis.drive.current_filter_hz)
 
     @cached_property
-    def armature_impedance(self):
-        """Z = R + sL, ohm."""
+    def armature_admittance(self):
+        """1 / (R + sL), A/V."""
         m = self.axis.motor
-        return m.resistance_ohm + m.inductance_h * self.s
+        return self.alg.tf([1.0], [m.inductance_h, m.resistance_ohm])
 
     @cached_property
     def current_plant(self):
         """i / v: 1/Z when back-EMF is decoupled, else 1/(Z + Ke Kt M_mm), A/V."""
         m = self.axis.motor
         if self.gains.current.decouple_back_emf:
-            return 1.0 / self.armature_impedance
-        return 1.0 / (self.armature_impedance
-                      + m.back_emf_v_s_per_rad * m.torque_constant_nm_per_a * self.motor_speed_per_torque)
+            return self.armature_admittance
+        kk = m.back_emf_v_s_per_rad * m.torque_constant_nm_per_a
+        return self.alg.feedback(self.armature_admittance, kk * self.motor_speed_per_torque)
 
     @cached_property
     def current_open(self):
@@ -173,54 +215,46 @@ class CascadeModel:
 
     @cached_property
     def current_closed(self):
-        """i / i* (A/A)."""
-        return self.current_forward * self.current_plant / (1.0 + self.current_open)
+        """i / i* (A/A), back-EMF included unless decoupled."""
+        return self.alg.feedback(self.current_forward * self.current_plant, self.current_feedback_filter)
 
     @cached_property
-    def _electrical(self):
-        """(i/i* ignoring back-EMF, A/A; back-EMF admittance Ye = i / -w, A per rad/s)."""
-        m = self.axis.motor
-        den = self.armature_impedance + self.current_forward * self.current_feedback_filter
-        te = self.current_forward / den
-        ye = 0.0 if self.gains.current.decouple_back_emf else m.back_emf_v_s_per_rad / den
-        return te, ye
-
-    @cached_property
-    def _backemf_loop(self):
-        te, ye = self._electrical
-        return 1.0 + self.motor_speed_per_torque * self.axis.motor.torque_constant_nm_per_a * ye
+    def backemf_admittance(self):
+        """Ye: current drawn per rad/s of speed through the closed current loop, A*s/rad (0 if decoupled)."""
+        if self.gains.current.decouple_back_emf:
+            return 0.0
+        ke = self.axis.motor.back_emf_v_s_per_rad
+        return ke * self.alg.feedback(self.armature_admittance, self.current_forward * self.current_feedback_filter)
 
     @cached_property
     def speed_plant(self):
         """w_m / i* with the current loop closed, rad/s per A."""
-        te, _ = self._electrical
-        kt = self.axis.motor.torque_constant_nm_per_a
-        return self.motor_speed_per_torque * kt * te / self._backemf_loop
+        return self.axis.motor.torque_constant_nm_per_a * self.motor_speed_per_torque * self.current_closed
 
     @cached_property
     def load_plant(self):
         """w_m / T_load with the current loop closed and the speed loop open, rad/s per N*m."""
-        return self.motor_speed_per_load_torque / self._backemf_loop
+        if self.gains.current.decouple_back_emf:
+            return self.motor_speed_per_load_torque
+        kt = self.axis.motor.torque_constant_nm_per_a
+        return self.motor_speed_per_load_torque * self.alg.feedback(
+            1.0, kt * self.motor_speed_per_torque * self.backemf_admittance)
 
     # --- speed loop -----------------------------------------------------------------
     @cached_property
-    def speed_controller(self):
-        pi = self.gains.speed.pi
-        return pi_controller(self.s, pi.kp, pi.ki)
-
-    @cached_property
     def speed_forward(self):
         """Cw Dw, A per rad/s."""
-        return self.speed_controller * self.alg.delay(self.delays_s[1])
+        pi = self.gains.speed.pi
+        return pi_controller(self.alg, pi.kp, pi.ki) * self.alg.delay(self.delays_s[1])
 
     @cached_property
     def speed_feedback_filter(self):
         """Low-pass times every feedback notch."""
         g = self.gains.speed
-        h = lowpass(self.s, g.feedback_lowpass_hz)
+        h = lowpass(self.alg, g.feedback_lowpass_hz)
         for n in g.notches:
             if n.place == "feedback":
-                h = h * notch(self.s, n.centre_hz, n.zeta_zero, n.zeta_pole)
+                h = h * notch(self.alg, n.centre_hz, n.zeta_zero, n.zeta_pole)
         return h
 
     @cached_property
@@ -229,7 +263,7 @@ class CascadeModel:
         f = 1.0
         for n in self.gains.speed.notches:
             if n.place == "command":
-                f = f * notch(self.s, n.centre_hz, n.zeta_zero, n.zeta_pole)
+                f = f * notch(self.alg, n.centre_hz, n.zeta_zero, n.zeta_pole)
         return f
 
     @cached_property
@@ -238,78 +272,89 @@ class CascadeModel:
         return self.speed_forward * self.speed_plant * self.speed_feedback_filter
 
     @cached_property
+    def speed_sensitivity(self):
+        """1 / (1 + speed open loop)."""
+        return self.alg.feedback(1.0, self.speed_open)
+
+    @cached_property
     def speed_closed(self):
         """w_m / w* including the command filter (rad/s per rad/s)."""
-        return self.speed_command_filter * self.speed_forward * self.speed_plant / (1.0 + self.speed_open)
+        return self.speed_command_filter * self.alg.feedback(
+            self.speed_forward * self.speed_plant, self.speed_feedback_filter)
 
     @cached_property
     def speed_disturbance(self):
         """w_m / T_load with the speed loop closed, position loop open, rad/s per N*m."""
-        return self.load_plant / (1.0 + self.speed_open)
+        return self.load_plant * self.speed_sensitivity
 
     # --- position loop --------------------------------------------------------------
     @cached_property
     def position_forward(self):
         """Cp Dp, (rad/s)/rad."""
         p = self.gains.position
-        return pi_controller(self.s, p.kp_per_s, p.ki_per_s2) * self.alg.delay(self.delays_s[2])
+        return pi_controller(self.alg, p.kp_per_s, p.ki_per_s2) * self.alg.delay(self.delays_s[2])
 
     @cached_property
     def position_open(self):
         """Position open loop Cp Dp (w_m/w*) / s (dimensionless)."""
-        return self.position_forward * self.speed_closed / self.s
+        return self.position_forward * self.speed_closed * self.integrator
 
     @cached_property
     def position_closed(self):
         """th_m / th* without feedforward (rad/rad)."""
-        return self.position_open / (1.0 + self.position_open)
+        return self.alg.feedback(self.position_open, 1.0)
+
+    @cached_property
+    def _speed_command_reaction(self):
+        """i* per -w_m with speed and position loops closed on motor feedback, A*s/rad."""
+        return self.speed_forward * (self.speed_feedback_filter
+                                     + self.speed_command_filter * self.position_forward * self.integrator)
 
     @cached_property
     def position_disturbance_speed(self):
         """w_m / T_load with all three loops closed, rad/s per N*m."""
-        k = self.speed_forward * (self.speed_feedback_filter
-                                  + self.speed_command_filter * self.position_forward / self.s)
-        return self.load_plant / (1.0 + self.speed_plant * k)
+        return self.load_plant * self.alg.feedback(1.0, self.speed_plant * self._speed_command_reaction)
 
     @cached_property
     def load_speed_per_load_torque(self):
         """w_load (reflected) / T_load with all loops closed, rad/s per N*m (motor side)."""
         if not self.axis.load.compliant:
             return self.position_disturbance_speed
-        te, ye = self._electrical
         kt = self.axis.motor.torque_constant_nm_per_a
-        k = self.speed_forward * (self.speed_feedback_filter
-                                  + self.speed_command_filter * self.position_forward / self.s)
-        wm = self.position_disturbance_speed
-        torque = -kt * (te * k + ye) * wm          # motor torque per load torque
-        _, _, m_lm, m_ll = self._mech
-        return m_lm * torque + m_ll
+        electrical = self.alg.feedback(self.current_forward * self.armature_admittance,
+                                       self.current_feedback_filter)
+        torque = -kt * (electrical * self._speed_command_reaction + self.backemf_admittance) \
+            * self.position_disturbance_speed
+        return self._mech(2) * torque + self._mech(3)
 
     @cached_property
     def dynamic_compliance(self):
         """Load-side position per load-side load torque, (rad or m) per (N*m or N)."""
         r = self.axis.load.ratio
-        return self.load_speed_per_load_torque / (self.s * r * r)
+        return self.load_speed_per_load_torque * self.integrator * (1.0 / (r * r))
 
     @cached_property
     def following_error(self):
-        """(th* - th_m)/th* with the velocity and acceleration feedforward (rad/rad)."""
+        """(th* - th_m)/th* with the velocity and acceleration feedforward (rad/rad).
+
+        Both feedforwards are computed in the position loop (delay Dp); the velocity
+        term joins the speed command, the acceleration term ``J_total/Kt * s^2 th*``
+        joins the current command after the speed controller.
+        """
         p = self.gains.position
         a = self.axis
-        s = self.s
         dp = self.alg.delay(self.delays_s[2])
-        # Velocity FF joins the speed command; acceleration FF joins the current command
-        # (J_total / Kt * s^2), both computed in the position loop.
-        speed_path = self.speed_closed / s                  # th_m per w*
-        accel_gain = a.total_inertia_kgm2 / a.motor.torque_constant_nm_per_a
-        current_path = self.speed_plant / (1.0 + self.speed_open) / s   # th_m per i* (speed loop closed)
-        ff = dp * (p.velocity_ff * s * speed_path + p.acceleration_ff * accel_gain * s * s * current_path)
-        return (1.0 - ff) / (1.0 + self.position_open)
+        accel_per_current = (a.motor.torque_constant_nm_per_a * self._mech(4) * self.current_closed
+                             * self.speed_sensitivity)          # s*w_m per i*, speed loop closed
+        ff = dp * (p.velocity_ff * self.speed_closed
+                   + p.acceleration_ff * a.total_inertia_kgm2 / a.motor.torque_constant_nm_per_a
+                   * accel_per_current)
+        return (1.0 - ff) * self.alg.feedback(1.0, self.position_open)
 
 
 @dataclass(frozen=True)
 class LoopTransfer:
-    """One loop's open- and closed-loop models as python-control transfer functions.
+    """One loop's open- and closed-loop models as python-control state-space systems.
 
     Delays are Pade approximants of order :attr:`pade_order`.
     """
@@ -319,8 +364,8 @@ class LoopTransfer:
     pade_order: int
 
 
-def control_models(axis: Axis, gains: GainSet, pade_order: int = 6) -> dict[str, LoopTransfer]:
-    """Every loop as python-control ``TransferFunction`` objects, for the user's own scripts.
+def control_models(axis: Axis, gains: GainSet, pade_order: int = 5) -> dict[str, LoopTransfer]:
+    """Every loop as python-control ``StateSpace`` objects, for the user's own scripts.
 
     Parameters
     ----------
@@ -334,12 +379,6 @@ def control_models(axis: Axis, gains: GainSet, pade_order: int = 6) -> dict[str,
         ``{"current": LoopTransfer, "speed": ..., "position": ...}``; open loops are
         dimensionless, closed loops map command to measured value (A/A, (rad/s)/(rad/s), rad/rad).
     """
-    import control
-
     model = CascadeModel(axis, gains, ControlAlgebra(pade_order))
-    out = {}
-    for name in ("current", "speed", "position"):
-        ol = control.minreal(getattr(model, f"{name}_open"), verbose=False)
-        cl = control.minreal(getattr(model, f"{name}_closed"), verbose=False)
-        out[name] = LoopTransfer(ol, cl, pade_order)
-    return out
+    return {name: LoopTransfer(getattr(model, f"{name}_open"), getattr(model, f"{name}_closed"), pade_order)
+            for name in ("current", "speed", "position")}

@@ -1,0 +1,145 @@
+"""One full recompute: margins of every loop, the four time responses, stiffness, flags.
+
+:func:`analyse` is what the window calls on every slider move and what
+``loopwright check`` prints; its result has a fixed shape whatever the input.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from core.axis import Axis
+from core.flags import Flag, Targets, margin_flags
+from core.gains import GainSet
+from core.loops import CascadeModel, FrequencyAlgebra
+from core.margins import LOOPS, FrequencyData, LoopMargins, loop_margins
+from core.motor import ConstantsCheck
+from core.responses import (LoadStepResponse, StepResponse, load_step_response, response_horizon_s,
+                            step_response)
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """Everything the checks and plots need for one axis and one gain set.
+
+    Attributes
+    ----------
+    margins : dict of str -> LoopMargins
+        Keyed "current", "speed", "position".
+    frequency : FrequencyData
+        Open and closed loops on the grid.
+    steps : dict of str -> StepResponse
+        Unit-step responses of each closed loop.
+    load_step : LoadStepResponse
+        All loops closed, a load-torque step at the motor.
+    stiffness_hz : ndarray
+        Frequencies of the dynamic-stiffness curve, Hz.
+    dynamic_stiffness : ndarray
+        |load torque / load position| at the load, N*m/rad (rotary) or N/m (linear).
+    flags : tuple of Flag
+    """
+
+    margins: dict
+    frequency: FrequencyData
+    steps: dict
+    load_step: LoadStepResponse
+    stiffness_hz: np.ndarray
+    dynamic_stiffness: np.ndarray
+    flags: tuple
+
+    @property
+    def worst_severity(self) -> str:
+        """"error", "warning", "info" or "ok"."""
+        for level in ("error", "warning", "info"):
+            if any(f.severity == level for f in self.flags):
+                return level
+        return "ok"
+
+
+def default_load_step_nm(axis: Axis) -> float:
+    """Load-torque step used when the targets do not give one: continuous motor torque, N*m.
+
+    Falls back to 10 % of peak torque (or of the drive limit) when no continuous rating is known.
+    """
+    kt = axis.motor.torque_constant_nm_per_a
+    if math.isfinite(axis.motor.continuous_current_a):
+        return kt * axis.motor.continuous_current_a
+    return 0.1 * kt * axis.current_limit_a
+
+
+def analyse(axis: Axis, gains: GainSet, targets: Targets | None = None,
+            constants: ConstantsCheck | None = None) -> Analysis:
+    """Margins, responses and flags of ``gains`` on ``axis``.
+
+    Parameters
+    ----------
+    axis, gains : Axis, GainSet
+    targets : Targets, optional
+        Margin and separation targets; defaults when omitted.
+    constants : ConstantsCheck, optional
+        The datasheet Kt/Ke comparison, flagged when inconsistent.
+
+    Returns
+    -------
+    Analysis
+    """
+    targets = targets or Targets()
+    margins, freq = loop_margins(axis, gains)
+    integral = {"current": gains.current.pi.integral_time_s, "speed": gains.speed.pi.integral_time_s,
+                "position": gains.position.pi.integral_time_s}
+    steps = {}
+    fallback = 10.0 * axis.mechanical_time_constant_s
+    for loop in LOOPS:
+        horizon = response_horizon_s(margins[loop].crossover_hz, integral[loop], fallback)
+        growth = 0.0 if margins[loop].stable else 2 * math.pi * max(margins[loop].crossover_hz or 0.0, 1.0)
+        steps[loop] = step_response(axis, gains, loop, horizon, growth)
+    load_torque = targets.load_step_nm if math.isfinite(targets.load_step_nm) else default_load_step_nm(axis)
+    pos = margins["position"]
+    horizon = response_horizon_s(pos.crossover_hz, integral["speed"], fallback)
+    growth = 0.0 if pos.stable else 2 * math.pi * max(pos.crossover_hz or 0.0, 1.0)
+    load = load_step_response(axis, gains, load_torque, horizon, growth)
+    omega = freq.omega_rad_s
+    compliance = CascadeModel(axis, gains, FrequencyAlgebra(omega)).dynamic_compliance
+    stiffness = 1.0 / np.abs(compliance)
+    flags = margin_flags(axis, margins, targets, constants)
+    return Analysis(margins, freq, steps, load, omega / (2 * math.pi), stiffness, tuple(flags))
+
+
+def analysis_summary(result: Analysis) -> dict:
+    """The documented JSON shape of ``loopwright check --json``.
+
+    ``{"loops": {loop: {crossover_hz, phase_margin_deg, gain_margin_db, delay_margin_s,
+    bandwidth_hz, sensitivity_peak, stable, unstable_poles, step_overshoot_pct,
+    step_settling_time_s}}, "load_step": {...}, "flags": [{loop, severity, message}]}``;
+    infinite margins are written as null.
+    """
+    def num(x):
+        return None if x is None or not math.isfinite(x) else float(x)
+
+    loops = {}
+    for loop in LOOPS:
+        m, st = result.margins[loop], result.steps[loop]
+        loops[loop] = {
+            "crossover_hz": num(m.crossover_hz),
+            "gain_crossovers_hz": [num(f) for f in m.gain_crossovers_hz],
+            "phase_margin_deg": num(m.phase_margin_deg),
+            "gain_margin_db": num(m.gain_margin_db),
+            "phase_crossovers_hz": [num(f) for f in m.phase_crossovers_hz],
+            "delay_margin_s": num(m.delay_margin_s),
+            "bandwidth_hz": num(m.bandwidth_hz),
+            "sensitivity_peak": num(m.sensitivity_peak),
+            "stable": bool(m.stable),
+            "unstable_poles": int(m.unstable_poles),
+            "step_overshoot_pct": num(st.overshoot_pct),
+            "step_settling_time_s": num(st.settling_time_s),
+        }
+    ls = result.load_step
+    return {
+        "loops": loops,
+        "load_step": {"load_torque_nm": num(ls.load_torque_nm), "speed_dip_rad_s": num(ls.speed_dip_rad_s),
+                      "position_error_rad": num(ls.position_error_rad), "recovery_time_s": num(ls.recovery_time_s)},
+        "flags": [{"loop": f.loop, "severity": f.severity, "message": f.message} for f in result.flags],
+    }

@@ -1,0 +1,123 @@
+"""Results -> violations in words, each with its loop and severity."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from core.axis import Axis
+from core.errors import require_range
+from core.flagtypes import Flag
+from core.margins import LOOPS, LoopMargins
+from core.motor import ConstantsCheck
+
+__all__ = ["Flag", "Targets", "margin_flags"]
+
+
+@dataclass(frozen=True)
+class Targets:
+    """Margin and separation targets (degrees, dB, ratios).
+
+    Defaults are common practice for servo axes: phase margin >= 45 deg, gain
+    margin >= 6 dB, Ms <= 2 (Skogestad & Postlethwaite, "Multivariable Feedback
+    Control", 2nd ed. 2005, section 2.4.3, from memory: Ms < 2 is a usual limit), each
+    outer loop at least 3x slower than the loop inside it.
+    """
+
+    current_phase_margin_deg: float = 45.0
+    speed_phase_margin_deg: float = 45.0
+    position_phase_margin_deg: float = 45.0
+    gain_margin_db: float = 6.0
+    sensitivity_peak_max: float = 2.0
+    separation_min: float = 3.0
+    current_crossover_max_fraction: float = 0.1
+    resonance_clearance: float = 2.0
+    load_step_nm: float = math.nan
+
+    def __post_init__(self):
+        for loop in LOOPS:
+            require_range(f"targets.{loop}_phase_margin", getattr(self, f"{loop}_phase_margin_deg"), 0.0, 90.0, "deg")
+        require_range("targets.gain_margin", self.gain_margin_db, 0.0, 40.0, "dB")
+        require_range("targets.sensitivity_peak_max", self.sensitivity_peak_max, 1.0, 10.0, "")
+        require_range("targets.separation_min", self.separation_min, 1.0, 100.0, "")
+        require_range("targets.current_crossover_max_fraction", self.current_crossover_max_fraction, 0.01, 0.5,
+                      "(of the current sample rate)")
+        require_range("targets.resonance_clearance", self.resonance_clearance, 1.0, 100.0, "")
+
+    def phase_margin_deg(self, loop: str) -> float:
+        """The phase-margin target of ``loop``, deg."""
+        return getattr(self, f"{loop}_phase_margin_deg")
+
+
+def _hz(f: float) -> str:
+    return f"{f / 1000:.3g} kHz" if f >= 1000 else f"{f:.3g} Hz"
+
+
+def margin_flags(axis: Axis, margins: dict[str, LoopMargins], targets: Targets,
+                 constants: ConstantsCheck | None = None) -> list[Flag]:
+    """Every violated margin, separation or sizing rule, in words.
+
+    Parameters
+    ----------
+    axis : Axis
+    margins : dict of str -> LoopMargins
+    targets : Targets
+    constants : ConstantsCheck, optional
+        The datasheet Kt/Ke comparison, when the axis came from a datasheet.
+
+    Returns
+    -------
+    list of Flag, errors first
+    """
+    flags: list[Flag] = []
+    for loop in LOOPS:
+        m = margins[loop]
+        if not m.stable:
+            flags.append(Flag(loop, "error", f"The closed {loop} loop is unstable: {m.unstable_poles} pole(s) "
+                                             "in the right half plane. Lower the gains or add margin."))
+            continue
+        pm_min = targets.phase_margin_deg(loop)
+        if m.phase_margin_deg < pm_min:
+            flags.append(Flag(loop, "warning", f"Phase margin {m.phase_margin_deg:.1f} deg at {_hz(m.phase_margin_hz)} "
+                                               f"is below the {pm_min:g} deg target."))
+        if m.gain_margin_db < targets.gain_margin_db:
+            flags.append(Flag(loop, "warning", f"Gain margin {m.gain_margin_db:.1f} dB at {_hz(m.gain_margin_hz)} "
+                                               f"is below the {targets.gain_margin_db:g} dB target."))
+        if m.sensitivity_peak > targets.sensitivity_peak_max:
+            flags.append(Flag(loop, "warning", f"Sensitivity peak Ms = {m.sensitivity_peak:.2f} at "
+                                               f"{_hz(m.sensitivity_peak_hz)} exceeds {targets.sensitivity_peak_max:g}: "
+                                               "disturbances near that frequency are amplified."))
+        if not math.isfinite(m.crossover_hz):
+            flags.append(Flag(loop, "warning", f"The {loop} loop gain never reaches 1: it has no crossover."))
+
+    cur, spd, pos = margins["current"], margins["speed"], margins["position"]
+    for inner, outer, a, b in (("current", "speed", cur, spd), ("speed", "position", spd, pos)):
+        if math.isfinite(a.crossover_hz) and math.isfinite(b.crossover_hz) and b.crossover_hz > 0:
+            ratio = a.crossover_hz / b.crossover_hz
+            if ratio < targets.separation_min:
+                flags.append(Flag(outer, "warning",
+                                  f"The {outer} loop crosses over at {_hz(b.crossover_hz)}, only {ratio:.2g}x below the "
+                                  f"{inner} loop ({_hz(a.crossover_hz)}); the target separation is "
+                                  f"{targets.separation_min:g}x."))
+    limit = targets.current_crossover_max_fraction * axis.drive.current_rate_hz
+    if math.isfinite(cur.crossover_hz) and cur.crossover_hz > limit:
+        flags.append(Flag("current", "warning",
+                          f"Current crossover {_hz(cur.crossover_hz)} is above {targets.current_crossover_max_fraction:g} "
+                          f"of the {_hz(axis.drive.current_rate_hz)} sample rate; the continuous model "
+                          "and its margins grow unreliable this close to the sampling."))
+    for label, f_res in (("resonance", axis.resonance_hz), ("anti-resonance", axis.antiresonance_hz)):
+        if not math.isfinite(f_res):
+            continue
+        for loop in ("speed", "position"):
+            fc = margins[loop].crossover_hz
+            if math.isfinite(fc) and fc / targets.resonance_clearance <= f_res <= fc * targets.resonance_clearance:
+                flags.append(Flag(loop, "warning",
+                                  f"The load {label} at {_hz(f_res)} lies within {targets.resonance_clearance:g}x of the "
+                                  f"{loop} crossover ({_hz(fc)}); consider a notch or a lower bandwidth."))
+    if constants is not None and not constants.consistent:
+        flags.append(Flag("axis", "warning",
+                          f"Datasheet Kt and Ke disagree by {constants.relative_difference * 100:+.1f} % after conversion "
+                          f"(Kt {constants.kt_given_nm_per_a:.4g} vs {constants.kt_from_ke_nm_per_a:.4g} N*m/A implied "
+                          "by Ke); check the rms/peak and line/phase conventions."))
+    order = {"error": 0, "warning": 1, "info": 2}
+    return sorted(flags, key=lambda f: order.get(f.severity, 3))

@@ -1,0 +1,328 @@
+"""Crossovers, margins, sensitivity peak, bandwidth and a Nyquist stability count.
+
+Everything is computed from the exact-delay frequency response of
+:class:`core.loops.CascadeModel`: grid values first, then each crossing refined
+by a few Illinois (modified regula falsi) steps on the model itself, all loops
+and all crossings of one iteration in one vectorised evaluation.
+
+Stability is decided by the argument principle, not from the margins: along the
+Nyquist contour (up the imaginary axis, round the origin to the right on a small
+arc, closed at infinity where the strictly proper loop vanishes) the number of
+closed-loop right-half-plane poles is ``Z = P - (change of arg(1 + L)) / 2 pi``,
+with ``P`` the open loop's right-half-plane poles, which are exactly the unstable
+closed-loop poles of the inner loop it contains (Nyquist criterion; e.g.
+Franklin, Powell & Emami-Naeini, "Feedback Control of Dynamic Systems", from memory).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from core.axis import Axis
+from core.gains import GainSet
+from core.loops import CascadeModel, FrequencyAlgebra
+
+LOOPS = ("current", "speed", "position")
+POINTS_PER_DECADE = 100
+_REFINE_STEPS = 4
+
+
+@dataclass(frozen=True)
+class LoopMargins:
+    """Stability margins of one loop broken at its controller output.
+
+    Attributes
+    ----------
+    gain_crossovers_hz, phase_crossovers_hz : tuple of float
+        Every frequency where |L| = 1, and where arg L = -180 deg (mod 360), Hz.
+    crossover_hz : float
+        The highest gain crossover, Hz (NaN when |L| never reaches 1).
+    phase_margin_deg : float
+        Smallest phase margin over the gain crossovers, deg (inf with none).
+    phase_margin_hz : float
+        Where that margin is taken, Hz.
+    gain_margin_db : float
+        Gain margin of smallest magnitude over the phase crossovers, dB (inf with none);
+        negative means the gain must fall by that much.
+    gain_margin_hz : float
+    delay_margin_s : float
+        Extra loop delay that would reach instability, s (0 when unstable).
+    sensitivity_peak : float
+        Ms = max |1/(1+L)| over the grid (refined at the peak).
+    sensitivity_peak_hz : float
+    bandwidth_hz : float
+        Lowest frequency where |T| falls 3 dB below its low-frequency value, Hz.
+    unstable_poles : int
+        Closed-loop poles in the right half plane (Nyquist count).
+    stable : bool
+    """
+
+    gain_crossovers_hz: tuple[float, ...]
+    phase_crossovers_hz: tuple[float, ...]
+    crossover_hz: float
+    phase_margin_deg: float
+    phase_margin_hz: float
+    gain_margin_db: float
+    gain_margin_hz: float
+    delay_margin_s: float
+    sensitivity_peak: float
+    sensitivity_peak_hz: float
+    bandwidth_hz: float
+    unstable_poles: int
+    stable: bool
+
+
+def frequency_grid(axis: Axis, gains: GainSet) -> np.ndarray:
+    """Angular frequencies for the Bode view and the margins, rad/s.
+
+    From well below the position loop's gain and the mechanical corner up to the
+    current loop's Nyquist frequency, ``POINTS_PER_DECADE`` per decade, with extra
+    points packed round any two-mass resonance and anti-resonance.
+    """
+    f_hi = 0.5 * axis.drive.current_rate_hz
+    mech_corner = axis.total_viscous_nm_s_per_rad / axis.total_inertia_kgm2 / (2 * math.pi)
+    f_lo = min(0.01 * gains.position.kp_per_s / (2 * math.pi), 1e-4 * f_hi)
+    if mech_corner > 0:
+        f_lo = min(f_lo, 0.3 * mech_corner)
+    f_lo = max(f_lo, 1e-7 * f_hi)
+    n = int(math.ceil(POINTS_PER_DECADE * math.log10(f_hi / f_lo))) + 1
+    f = np.logspace(math.log10(f_lo), math.log10(f_hi), n)
+    extra = []
+    for fr in (axis.resonance_hz, axis.antiresonance_hz):
+        if math.isfinite(fr) and f_lo < fr < f_hi:
+            extra.append(fr * np.linspace(0.9, 1.1, 41))
+    if extra:
+        f = np.unique(np.concatenate([f, *extra]))
+    return 2 * math.pi * f
+
+
+@dataclass(frozen=True)
+class FrequencyData:
+    """Open- and closed-loop frequency responses on the grid (complex, per loop)."""
+
+    omega_rad_s: np.ndarray
+    open_loop: dict
+    closed_loop: dict
+
+
+def _loop_arrays(model: CascadeModel) -> tuple[list, list]:
+    return ([model.current_open, model.speed_open, model.position_open],
+            [model.current_closed, model.speed_closed, model.position_closed])
+
+
+class _Evaluator:
+    """Evaluates all three loops at arbitrary points of the jw axis (or any s)."""
+
+    def __init__(self, axis: Axis, gains: GainSet):
+        self.axis, self.gains = axis, gains
+
+    def at_omega(self, omega):
+        return _loop_arrays(CascadeModel(self.axis, self.gains, FrequencyAlgebra(omega)))
+
+    def at_s(self, s):
+        alg = FrequencyAlgebra(np.zeros(1))
+        alg.s = np.asarray(s, dtype=complex)
+        return _loop_arrays(CascadeModel(self.axis, self.gains, alg))
+
+
+def _residual(kind: str, ol, cl, ref):
+    if kind == "gain":
+        return np.log(np.abs(ol))
+    if kind == "phase":
+        return np.angle(-ol)
+    return np.log(np.abs(cl)) - ref          # bandwidth: |T| against |T0|/sqrt(2)
+
+
+def _refine(ev: _Evaluator, brackets: list) -> np.ndarray:
+    """Illinois iterations on log(w) for every bracket at once.
+
+    ``brackets``: (loop index, kind, w_lo, w_hi, r_lo, r_hi, ref) with residuals of
+    opposite sign at the ends. Returns the refined w, rad/s.
+    """
+    if not brackets:
+        return np.zeros(0)
+    loop = np.array([b[0] for b in brackets])
+    kinds = [b[1] for b in brackets]
+    a = np.log(np.array([b[2] for b in brackets]))
+    b = np.log(np.array([b[3] for b in brackets]))
+    fa = np.array([br[4] for br in brackets])
+    fb = np.array([br[5] for br in brackets])
+    ref = np.array([br[6] for br in brackets])
+    x = b
+    for _ in range(_REFINE_STEPS):
+        x = np.where(fb != fa, b - fb * (b - a) / (fb - fa), 0.5 * (a + b))
+        ols, cls = ev.at_omega(np.exp(x))
+        fx = np.empty_like(x)
+        for i, k in enumerate(kinds):
+            fx[i] = _residual(k, ols[loop[i]][i], cls[loop[i]][i], ref[i])
+        same = np.sign(fx) == np.sign(fb)
+        # Illinois: halve the retained end's residual when the same end is kept twice.
+        fa = np.where(same, fa * 0.5, fb)
+        a = np.where(same, a, b)
+        b, fb = x, fx
+    return np.exp(x)
+
+
+def _sign_changes(r: np.ndarray) -> np.ndarray:
+    return np.nonzero(np.signbit(r[:-1]) != np.signbit(r[1:]))[0]
+
+
+def _wrap_deg(angle_rad):
+    """Angle in degrees wrapped to (-180, 180]."""
+    d = np.degrees(angle_rad)
+    return 180.0 - np.mod(180.0 - d, 360.0)
+
+
+def _arg_change(values: np.ndarray) -> np.ndarray:
+    """Increments of arg(values) between neighbours, rad, each in (-pi, pi]."""
+    return np.angle(values[1:] / values[:-1])
+
+
+def nyquist_count(ev: _Evaluator, omega: np.ndarray, open_loops: list, max_passes: int = 6) -> list[float]:
+    """Net change of arg(1 + L) round the Nyquist contour divided by 2 pi, per loop.
+
+    The contour runs from ``omega[0]`` upwards (and its mirror image), closes round
+    the origin on a right-hand arc of radius ``omega[0]`` and is taken as closed at
+    the top of the grid, which the caller extends until |L| is small. Wherever one
+    step turns arg(1 + L) by more than 1 rad the interval is subdivided.
+    """
+    w = omega.copy()
+    vals = [1.0 + ol for ol in open_loops]
+    for _ in range(max_passes):
+        bad = np.zeros(len(w) - 1, dtype=bool)
+        for v in vals:
+            bad |= np.abs(_arg_change(v)) > 1.0
+        if not bad.any():
+            break
+        idx = np.nonzero(bad)[0]
+        mids = np.sqrt(w[idx] * w[idx + 1])
+        new, _ = ev.at_omega(mids)
+        order = np.argsort(np.concatenate([w, mids]), kind="stable")
+        w = np.concatenate([w, mids])[order]
+        vals = [np.concatenate([v, 1.0 + n])[order] for v, n in zip(vals, new)]
+    theta = np.linspace(-0.5 * np.pi, 0.5 * np.pi, 33)
+    arc, _ = ev.at_s(omega[0] * np.exp(1j * theta))
+    turns = []
+    for v, a in zip(vals, arc):
+        upper = _arg_change(v).sum()
+        around = _arg_change(1.0 + a).sum()
+        turns.append((2.0 * upper + around) / (2.0 * np.pi))
+    return turns
+
+
+def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) -> tuple[dict, FrequencyData]:
+    """Margins of the current, speed and position loops, and the responses they came from.
+
+    Parameters
+    ----------
+    axis, gains : Axis, GainSet
+    omega : ndarray, optional
+        Grid, rad/s; :func:`frequency_grid` by default.
+
+    Returns
+    -------
+    (dict of str -> LoopMargins, FrequencyData)
+    """
+    if omega is None:
+        omega = frequency_grid(axis, gains)
+    ev = _Evaluator(axis, gains)
+    # One evaluation: the grid plus a tail to 100x its top for the Nyquist count.
+    tail = omega[-1] * np.logspace(0, 2, 2 * POINTS_PER_DECADE + 1)[1:]
+    ols_all, cls_all = ev.at_omega(np.concatenate([omega, tail]))
+    n = len(omega)
+    ols = [o[:n] for o in ols_all]
+    cls = [c[:n] for c in cls_all]
+
+    brackets, owners = [], []
+    for li in range(3):
+        ol, cl = ols[li], cls[li]
+        r_gain = np.log(np.abs(ol))
+        for k in _sign_changes(r_gain):
+            brackets.append((li, "gain", omega[k], omega[k + 1], r_gain[k], r_gain[k + 1], 0.0))
+        phase = np.unwrap(np.angle(ol))
+        turn = np.floor((phase + np.pi) / (2 * np.pi))
+        for k in np.nonzero(turn[:-1] != turn[1:])[0]:
+            r = _residual("phase", ol[k:k + 2], None, 0.0)
+            if np.signbit(r[0]) != np.signbit(r[1]):
+                brackets.append((li, "phase", omega[k], omega[k + 1], r[0], r[1], 0.0))
+        ref = math.log(abs(cl[0]) / math.sqrt(2.0))
+        r_bw = np.log(np.abs(cl)) - ref
+        below = np.nonzero(r_bw < 0)[0]
+        if len(below) and below[0] > 0:
+            k = below[0] - 1
+            brackets.append((li, "bw", omega[k], omega[k + 1], r_bw[k], r_bw[k + 1], ref))
+    refined = _refine(ev, brackets)
+
+    # Sensitivity peaks: the grid maximum, then a parabola in log(w) through its neighbours.
+    peak_idx = [int(np.argmax(np.abs(1.0 / (1.0 + ol)))) for ol in ols]
+    peak_w = []
+    for k in peak_idx:
+        k = min(max(k, 1), n - 2)
+        x = np.log(omega[k - 1:k + 2])
+        y = [np.log(abs(1.0 / (1.0 + ols[i][k - 1:k + 2]))) for i in range(3)]
+        peak_w.append((k, x, y))
+    vertices = []
+    for li, (k, x, y) in enumerate(peak_w):
+        ys = y[li]
+        denom = (x[0] - x[1]) * (x[0] - x[2]) * (x[1] - x[2])
+        a2 = (x[2] * (ys[1] - ys[0]) + x[1] * (ys[0] - ys[2]) + x[0] * (ys[2] - ys[1])) / denom
+        b2 = (x[2] ** 2 * (ys[0] - ys[1]) + x[1] ** 2 * (ys[2] - ys[0]) + x[0] ** 2 * (ys[1] - ys[2])) / denom
+        xv = -b2 / (2 * a2) if a2 < 0 else x[1]
+        vertices.append(math.exp(min(max(xv, x[0]), x[2])))
+    vert_ols, _ = ev.at_omega(np.array(vertices))
+
+    turns = nyquist_count(ev, np.concatenate([omega, tail]), ols_all)
+
+    out = {}
+    inner_unstable = 0
+    for li, name in enumerate(LOOPS):
+        sel = [i for i, b in enumerate(brackets) if b[0] == li]
+        gw = sorted(refined[i] for i in sel if brackets[i][1] == "gain")
+        pw = sorted(refined[i] for i in sel if brackets[i][1] == "phase")
+        bw = [refined[i] for i in sel if brackets[i][1] == "bw"]
+        pts, _ = ev.at_omega(np.array(gw + pw)) if gw or pw else ([np.zeros(0)] * 3, None)
+        at = pts[li]
+        pms = _wrap_deg(np.angle(at[:len(gw)]) + np.pi)
+        gms = -20.0 * np.log10(np.abs(at[len(gw):]))
+        if len(pms):
+            j = int(np.argmin(pms))
+            pm, pm_w = float(pms[j]), gw[j]
+            dm_candidates = [math.radians(p) / w for p, w in zip(pms, gw) if p > 0]
+            delay_margin = min(dm_candidates) if len(dm_candidates) == len(pms) else 0.0
+        else:
+            pm, pm_w, delay_margin = math.inf, math.nan, math.inf
+        if len(gms):
+            j = int(np.argmin(np.abs(gms)))
+            gm, gm_w = float(gms[j]), pw[j]
+        else:
+            gm, gm_w = math.inf, math.nan
+        k = peak_idx[li]
+        ms_grid = float(abs(1.0 / (1.0 + ols[li][k])))
+        ms_vertex = float(abs(1.0 / (1.0 + vert_ols[li][li])))
+        ms, ms_w = (ms_vertex, vertices[li]) if ms_vertex > ms_grid else (ms_grid, omega[k])
+        z = inner_unstable - turns[li]
+        unstable = max(int(round(z)), 0)
+        inner_unstable = unstable
+        stable = unstable == 0
+        if not stable:
+            delay_margin = 0.0
+        out[name] = LoopMargins(
+            gain_crossovers_hz=tuple(float(w / (2 * math.pi)) for w in gw),
+            phase_crossovers_hz=tuple(float(w / (2 * math.pi)) for w in pw),
+            crossover_hz=float(gw[-1] / (2 * math.pi)) if gw else math.nan,
+            phase_margin_deg=pm,
+            phase_margin_hz=float(pm_w / (2 * math.pi)),
+            gain_margin_db=gm,
+            gain_margin_hz=float(gm_w / (2 * math.pi)),
+            delay_margin_s=float(delay_margin),
+            sensitivity_peak=ms,
+            sensitivity_peak_hz=float(ms_w / (2 * math.pi)),
+            bandwidth_hz=float(bw[0] / (2 * math.pi)) if bw else math.nan,
+            unstable_poles=unstable,
+            stable=stable,
+        )
+    data = FrequencyData(omega, dict(zip(LOOPS, ols)), dict(zip(LOOPS, cls)))
+    return out, data
