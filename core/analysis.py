@@ -12,9 +12,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from core.axis import Axis
-from core.flags import Flag, Targets, margin_flags
+from core.flags import Flag, Targets, margin_flags, step_flags
 from core.gains import GainSet
-from core.loops import CascadeModel, FrequencyAlgebra
 from core.margins import LOOPS, FrequencyData, LoopMargins, loop_margins
 from core.motor import ConstantsCheck
 from core.responses import (LoadStepResponse, StepResponse, load_step_response, response_horizon_s,
@@ -102,9 +101,9 @@ def analyse(axis: Axis, gains: GainSet, targets: Targets | None = None,
     growth = 0.0 if pos.stable else 2 * math.pi * max(pos.crossover_hz or 0.0, 1.0)
     load = load_step_response(axis, gains, load_torque, horizon, growth)
     omega = freq.omega_rad_s
-    compliance = CascadeModel(axis, gains, FrequencyAlgebra(omega)).dynamic_compliance
-    stiffness = 1.0 / np.abs(compliance)
+    stiffness = 1.0 / np.abs(freq.dynamic_compliance)
     flags = margin_flags(axis, margins, targets, constants)
+    flags += step_flags({k: v for k, v in steps.items() if margins[k].stable}, targets)
     return Analysis(margins, freq, steps, load, omega / (2 * math.pi), stiffness, tuple(flags))
 
 

@@ -6,12 +6,12 @@ import math
 from dataclasses import dataclass
 
 from core.axis import Axis
-from core.errors import require_range
+from core.errors import InputError, require_range
 from core.flagtypes import Flag
 from core.margins import LOOPS, LoopMargins
 from core.motor import ConstantsCheck
 
-__all__ = ["Flag", "Targets", "margin_flags"]
+__all__ = ["Flag", "Targets", "margin_flags", "step_flags", "targets_from_dict"]
 
 
 @dataclass(frozen=True)
@@ -27,9 +27,16 @@ class Targets:
     current_phase_margin_deg: float = 45.0
     speed_phase_margin_deg: float = 45.0
     position_phase_margin_deg: float = 45.0
-    gain_margin_db: float = 6.0
+    current_gain_margin_db: float = 6.0
+    speed_gain_margin_db: float = 6.0
+    position_gain_margin_db: float = 6.0
     sensitivity_peak_max: float = 2.0
     separation_min: float = 3.0
+    delay_margin_min_s: float = 0.0
+    step_overshoot_max_pct: float = math.inf
+    current_bandwidth_min_hz: float = 0.0
+    speed_bandwidth_min_hz: float = 0.0
+    position_bandwidth_min_hz: float = 0.0
     current_crossover_max_fraction: float = 0.1
     resonance_clearance: float = 2.0
     load_step_nm: float = math.nan
@@ -37,7 +44,11 @@ class Targets:
     def __post_init__(self):
         for loop in LOOPS:
             require_range(f"targets.{loop}_phase_margin", getattr(self, f"{loop}_phase_margin_deg"), 0.0, 90.0, "deg")
-        require_range("targets.gain_margin", self.gain_margin_db, 0.0, 40.0, "dB")
+            require_range(f"targets.{loop}_gain_margin", getattr(self, f"{loop}_gain_margin_db"), 0.0, 40.0, "dB")
+            require_range(f"targets.{loop}_bandwidth_min", getattr(self, f"{loop}_bandwidth_min_hz"), 0.0, 1e6, "Hz")
+        require_range("targets.delay_margin_min", self.delay_margin_min_s, 0.0, 1.0, "s")
+        if not self.step_overshoot_max_pct >= 0:
+            raise InputError("targets.step_overshoot_max", self.step_overshoot_max_pct, "a percentage >= 0")
         require_range("targets.sensitivity_peak_max", self.sensitivity_peak_max, 1.0, 10.0, "")
         require_range("targets.separation_min", self.separation_min, 1.0, 100.0, "")
         require_range("targets.current_crossover_max_fraction", self.current_crossover_max_fraction, 0.01, 0.5,
@@ -47,6 +58,33 @@ class Targets:
     def phase_margin_deg(self, loop: str) -> float:
         """The phase-margin target of ``loop``, deg."""
         return getattr(self, f"{loop}_phase_margin_deg")
+
+    def gain_margin_db(self, loop: str) -> float:
+        """The gain-margin target of ``loop``, dB."""
+        return getattr(self, f"{loop}_gain_margin_db")
+
+
+# Preset [targets] keys (see core.presets.TARGET_UNITS) -> Targets fields, with a scale.
+_TARGET_KEYS = {
+    **{f"{loop}_phase_margin_min": (f"{loop}_phase_margin_deg", 1.0) for loop in LOOPS},
+    **{f"{loop}_gain_margin_min": (f"{loop}_gain_margin_db", 1.0) for loop in LOOPS},
+    **{f"{loop}_bandwidth_min": (f"{loop}_bandwidth_min_hz", 1.0) for loop in LOOPS},
+    "ms_max": ("sensitivity_peak_max", 1.0),
+    "separation_min": ("separation_min", 1.0),
+    "delay_margin_min": ("delay_margin_min_s", 1.0),
+    "step_overshoot_max": ("step_overshoot_max_pct", 100.0),   # stored as a fraction
+}
+
+
+def targets_from_dict(values: dict) -> Targets:
+    """Targets from a preset's ``[targets]`` table (already in SI, see core.presets)."""
+    kwargs = {}
+    for key, value in values.items():
+        if key not in _TARGET_KEYS:
+            raise InputError(f"targets.{key}", value, "one of " + ", ".join(_TARGET_KEYS))
+        name, scale = _TARGET_KEYS[key]
+        kwargs[name] = float(value) * scale
+    return Targets(**kwargs)
 
 
 def _hz(f: float) -> str:
@@ -80,9 +118,17 @@ def margin_flags(axis: Axis, margins: dict[str, LoopMargins], targets: Targets,
         if m.phase_margin_deg < pm_min:
             flags.append(Flag(loop, "warning", f"Phase margin {m.phase_margin_deg:.1f} deg at {_hz(m.phase_margin_hz)} "
                                                f"is below the {pm_min:g} deg target."))
-        if m.gain_margin_db < targets.gain_margin_db:
+        gm_min = targets.gain_margin_db(loop)
+        if m.gain_margin_db < gm_min:
             flags.append(Flag(loop, "warning", f"Gain margin {m.gain_margin_db:.1f} dB at {_hz(m.gain_margin_hz)} "
-                                               f"is below the {targets.gain_margin_db:g} dB target."))
+                                               f"is below the {gm_min:g} dB target."))
+        if m.delay_margin_s < targets.delay_margin_min_s:
+            flags.append(Flag(loop, "warning", f"Delay margin {m.delay_margin_s * 1e6:.0f} us is below the "
+                                               f"{targets.delay_margin_min_s * 1e6:.0f} us target."))
+        bw_min = getattr(targets, f"{loop}_bandwidth_min_hz")
+        if not m.bandwidth_hz >= bw_min:
+            flags.append(Flag(loop, "warning", f"Closed-loop bandwidth {_hz(m.bandwidth_hz)} is below the "
+                                               f"{_hz(bw_min)} target."))
         if m.sensitivity_peak > targets.sensitivity_peak_max:
             flags.append(Flag(loop, "warning", f"Sensitivity peak Ms = {m.sensitivity_peak:.2f} at "
                                                f"{_hz(m.sensitivity_peak_hz)} exceeds {targets.sensitivity_peak_max:g}: "
@@ -121,3 +167,13 @@ def margin_flags(axis: Axis, margins: dict[str, LoopMargins], targets: Targets,
                           "by Ke); check the rms/peak and line/phase conventions."))
     order = {"error": 0, "warning": 1, "info": 2}
     return sorted(flags, key=lambda f: order.get(f.severity, 3))
+
+
+def step_flags(steps: dict, targets: Targets) -> list[Flag]:
+    """Step overshoot above the target, per loop (``steps``: loop -> StepResponse)."""
+    flags = []
+    for loop, st in steps.items():
+        if math.isfinite(targets.step_overshoot_max_pct) and st.overshoot_pct > targets.step_overshoot_max_pct:
+            flags.append(Flag(loop, "warning", f"Step overshoot {st.overshoot_pct:.1f} % exceeds the "
+                                               f"{targets.step_overshoot_max_pct:g} % target."))
+    return flags

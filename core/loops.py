@@ -53,12 +53,20 @@ class FrequencyAlgebra:
 
     def tf(self, num, den):
         """The rational block num(s)/den(s), coefficients highest power first."""
-        return np.polyval(num, self.s) / np.polyval(den, self.s)
+        return _horner(num, self.s) / _horner(den, self.s)
 
     @staticmethod
     def feedback(forward, back):
         """forward / (1 + forward * back)."""
         return forward / (1.0 + forward * back)
+
+
+def _horner(coefficients, s):
+    """Polynomial value by Horner's rule (numpy.polyval's checks cost more than the work here)."""
+    value = coefficients[0]
+    for c in coefficients[1:]:
+        value = value * s + c
+    return value if len(coefficients) > 1 else value + 0.0 * s
 
 
 class ControlAlgebra:

@@ -27,7 +27,7 @@ from core.loops import CascadeModel, FrequencyAlgebra
 
 LOOPS = ("current", "speed", "position")
 POINTS_PER_DECADE = 100
-_REFINE_STEPS = 4
+_REFINE_STEPS = 3
 
 
 @dataclass(frozen=True)
@@ -39,9 +39,11 @@ class LoopMargins:
     gain_crossovers_hz, phase_crossovers_hz : tuple of float
         Every frequency where |L| = 1, and where arg L = -180 deg (mod 360), Hz.
     crossover_hz : float
-        The highest gain crossover, Hz (NaN when |L| never reaches 1).
+        The lowest gain crossover, which sets the loop's bandwidth, Hz (NaN when |L|
+        never reaches 1). A resonance can add more crossovers above it.
     phase_margin_deg : float
-        Smallest phase margin over the gain crossovers, deg (inf with none).
+        Smallest phase margin over the gain crossovers, deg (inf with none): the
+        angular distance of arg L from -180 deg; negative only when the loop is unstable.
     phase_margin_hz : float
         Where that margin is taken, Hz.
     gain_margin_db : float
@@ -49,7 +51,7 @@ class LoopMargins:
         negative means the gain must fall by that much.
     gain_margin_hz : float
     delay_margin_s : float
-        Extra loop delay that would reach instability, s (0 when unstable).
+        Smallest extra loop delay that turns some crossover onto -180 deg, s (0 when unstable).
     sensitivity_peak : float
         Ms = max |1/(1+L)| over the grid (refined at the peak).
     sensitivity_peak_hz : float
@@ -101,11 +103,16 @@ def frequency_grid(axis: Axis, gains: GainSet) -> np.ndarray:
 
 @dataclass(frozen=True)
 class FrequencyData:
-    """Open- and closed-loop frequency responses on the grid (complex, per loop)."""
+    """Open- and closed-loop frequency responses on the grid (complex, per loop).
+
+    ``dynamic_compliance`` is load position per load torque at the load, (rad or m)
+    per (N*m or N), all loops closed.
+    """
 
     omega_rad_s: np.ndarray
     open_loop: dict
     closed_loop: dict
+    dynamic_compliance: np.ndarray
 
 
 def _loop_arrays(model: CascadeModel) -> tuple[list, list]:
@@ -143,7 +150,7 @@ def _refine(ev: _Evaluator, brackets: list) -> np.ndarray:
     opposite sign at the ends. Returns the refined w, rad/s.
     """
     if not brackets:
-        return np.zeros(0)
+        return np.zeros(0), [np.zeros(0, complex)] * 3
     loop = np.array([b[0] for b in brackets])
     kinds = [b[1] for b in brackets]
     a = np.log(np.array([b[2] for b in brackets]))
@@ -163,7 +170,7 @@ def _refine(ev: _Evaluator, brackets: list) -> np.ndarray:
         fa = np.where(same, fa * 0.5, fb)
         a = np.where(same, a, b)
         b, fb = x, fx
-    return np.exp(x)
+    return np.exp(x), ols
 
 
 def _sign_changes(r: np.ndarray) -> np.ndarray:
@@ -181,11 +188,13 @@ def _arg_change(values: np.ndarray) -> np.ndarray:
     return np.angle(values[1:] / values[:-1])
 
 
-def nyquist_count(ev: _Evaluator, omega: np.ndarray, open_loops: list, max_passes: int = 6) -> list[float]:
+def nyquist_count(ev: _Evaluator, omega: np.ndarray, open_loops: list, arc_open_loops: list,
+                  max_passes: int = 6) -> list[float]:
     """Net change of arg(1 + L) round the Nyquist contour divided by 2 pi, per loop.
 
     The contour runs from ``omega[0]`` upwards (and its mirror image), closes round
-    the origin on a right-hand arc of radius ``omega[0]`` and is taken as closed at
+    the origin on a right-hand arc of radius ``omega[0]`` (``arc_open_loops`` holds L on
+    that arc, from -j omega[0] to +j omega[0]) and is taken as closed at
     the top of the grid, which the caller extends until |L| is small. Wherever one
     step turns arg(1 + L) by more than 1 rad the interval is subdivided.
     """
@@ -203,10 +212,8 @@ def nyquist_count(ev: _Evaluator, omega: np.ndarray, open_loops: list, max_passe
         order = np.argsort(np.concatenate([w, mids]), kind="stable")
         w = np.concatenate([w, mids])[order]
         vals = [np.concatenate([v, 1.0 + n])[order] for v, n in zip(vals, new)]
-    theta = np.linspace(-0.5 * np.pi, 0.5 * np.pi, 33)
-    arc, _ = ev.at_s(omega[0] * np.exp(1j * theta))
     turns = []
-    for v, a in zip(vals, arc):
+    for v, a in zip(vals, arc_open_loops):
         upper = _arg_change(v).sum()
         around = _arg_change(1.0 + a).sum()
         turns.append((2.0 * upper + around) / (2.0 * np.pi))
@@ -231,7 +238,8 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
     ev = _Evaluator(axis, gains)
     # One evaluation: the grid plus a tail to 100x its top for the Nyquist count.
     tail = omega[-1] * np.logspace(0, 2, 2 * POINTS_PER_DECADE + 1)[1:]
-    ols_all, cls_all = ev.at_omega(np.concatenate([omega, tail]))
+    grid_model = CascadeModel(axis, gains, FrequencyAlgebra(np.concatenate([omega, tail])))
+    ols_all, cls_all = _loop_arrays(grid_model)
     n = len(omega)
     ols = [o[:n] for o in ols_all]
     cls = [c[:n] for c in cls_all]
@@ -254,7 +262,7 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         if len(below) and below[0] > 0:
             k = below[0] - 1
             brackets.append((li, "bw", omega[k], omega[k + 1], r_bw[k], r_bw[k + 1], ref))
-    refined = _refine(ev, brackets)
+    refined, refined_ols = _refine(ev, brackets)
 
     # Sensitivity peaks: the grid maximum, then a parabola in log(w) through its neighbours.
     peak_idx = [int(np.argmax(np.abs(1.0 / (1.0 + ol)))) for ol in ols]
@@ -272,9 +280,13 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         b2 = (x[2] ** 2 * (ys[0] - ys[1]) + x[1] ** 2 * (ys[2] - ys[0]) + x[0] ** 2 * (ys[1] - ys[2])) / denom
         xv = -b2 / (2 * a2) if a2 < 0 else x[1]
         vertices.append(math.exp(min(max(xv, x[0]), x[2])))
-    vert_ols, _ = ev.at_omega(np.array(vertices))
+    # The Nyquist arc round the origin and the three parabola vertices in one evaluation.
+    theta = np.linspace(-0.5 * np.pi, 0.5 * np.pi, 33)
+    extra, _ = ev.at_s(np.concatenate([omega[0] * np.exp(1j * theta), 1j * np.array(vertices)]))
+    arc = [e[:len(theta)] for e in extra]
+    vert_ols = [e[len(theta):] for e in extra]
 
-    turns = nyquist_count(ev, np.concatenate([omega, tail]), ols_all)
+    turns = nyquist_count(ev, np.concatenate([omega, tail]), ols_all, arc)
 
     out = {}
     inner_unstable = 0
@@ -283,15 +295,24 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         gw = sorted(refined[i] for i in sel if brackets[i][1] == "gain")
         pw = sorted(refined[i] for i in sel if brackets[i][1] == "phase")
         bw = [refined[i] for i in sel if brackets[i][1] == "bw"]
-        pts, _ = ev.at_omega(np.array(gw + pw)) if gw or pw else ([np.zeros(0)] * 3, None)
-        at = pts[li]
-        pms = _wrap_deg(np.angle(at[:len(gw)]) + np.pi)
-        gms = -20.0 * np.log10(np.abs(at[len(gw):]))
+        g_sel = sorted((i for i in sel if brackets[i][1] == "gain"), key=lambda i: refined[i])
+        p_sel = sorted((i for i in sel if brackets[i][1] == "phase"), key=lambda i: refined[i])
+        at = refined_ols[li]
+        z = inner_unstable - turns[li]
+        unstable = max(int(round(z)), 0)
+        inner_unstable = unstable
+        stable = unstable == 0
+        # Distance of arg L from -180 deg at each crossover. Between a two-mass load's
+        # anti-resonance and resonance the phase can sit far above -180, and the nearest
+        # critical direction is then a phase lead: a stable loop reports that distance.
+        signed = _wrap_deg(np.angle(at[g_sel]) + np.pi)
+        pms = np.abs(signed) if stable else signed
+        lag_room = np.radians(np.mod(np.degrees(np.angle(at[g_sel])) + 180.0, 360.0))
+        gms = -20.0 * np.log10(np.abs(at[p_sel]))
         if len(pms):
             j = int(np.argmin(pms))
             pm, pm_w = float(pms[j]), gw[j]
-            dm_candidates = [math.radians(p) / w for p, w in zip(pms, gw) if p > 0]
-            delay_margin = min(dm_candidates) if len(dm_candidates) == len(pms) else 0.0
+            delay_margin = float(np.min(lag_room / np.array(gw))) if stable else 0.0
         else:
             pm, pm_w, delay_margin = math.inf, math.nan, math.inf
         if len(gms):
@@ -303,16 +324,10 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         ms_grid = float(abs(1.0 / (1.0 + ols[li][k])))
         ms_vertex = float(abs(1.0 / (1.0 + vert_ols[li][li])))
         ms, ms_w = (ms_vertex, vertices[li]) if ms_vertex > ms_grid else (ms_grid, omega[k])
-        z = inner_unstable - turns[li]
-        unstable = max(int(round(z)), 0)
-        inner_unstable = unstable
-        stable = unstable == 0
-        if not stable:
-            delay_margin = 0.0
         out[name] = LoopMargins(
             gain_crossovers_hz=tuple(float(w / (2 * math.pi)) for w in gw),
             phase_crossovers_hz=tuple(float(w / (2 * math.pi)) for w in pw),
-            crossover_hz=float(gw[-1] / (2 * math.pi)) if gw else math.nan,
+            crossover_hz=float(gw[0] / (2 * math.pi)) if gw else math.nan,
             phase_margin_deg=pm,
             phase_margin_hz=float(pm_w / (2 * math.pi)),
             gain_margin_db=gm,
@@ -324,5 +339,6 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
             unstable_poles=unstable,
             stable=stable,
         )
-    data = FrequencyData(omega, dict(zip(LOOPS, ols)), dict(zip(LOOPS, cls)))
+    data = FrequencyData(omega, dict(zip(LOOPS, ols)), dict(zip(LOOPS, cls)),
+                         grid_model.dynamic_compliance[:n])
     return out, data

@@ -43,6 +43,8 @@ class TuningSettings:
         The symmetric optimum's ``a`` (> 1; a = 2 is Kessler's original choice).
     speed_to_position_ratio : float
         Speed crossover over position-loop gain (common practice: 3-10).
+    speed_crossover_hz, position_crossover_hz : float
+        Explicit crossover targets, Hz; 0 means "from the separation ratio".
     speed_feedback_lowpass_hz : float
         Feedback low-pass to put in the speed loop, Hz (0 = none); included in the lag.
     velocity_ff, acceleration_ff : float
@@ -57,6 +59,8 @@ class TuningSettings:
     speed_integral_ratio: float = 4.0
     symmetric_optimum_a: float = 3.0
     speed_to_position_ratio: float = 4.0
+    speed_crossover_hz: float = 0.0
+    position_crossover_hz: float = 0.0
     speed_feedback_lowpass_hz: float = 0.0
     velocity_ff: float = 1.0
     acceleration_ff: float = 1.0
@@ -171,12 +175,15 @@ def tune_speed(axis: Axis, current: PI, settings: TuningSettings,
         wc_current = (2.0 * math.pi * current_crossover_hz if current_crossover_hz
                       else 1.0 / t_current)
         wc = wc_current / settings.current_to_speed_ratio
+        if settings.speed_crossover_hz > 0:
+            wc = 2.0 * math.pi * settings.speed_crossover_hz
         kp = j * wc / kt
         ti = settings.speed_integral_ratio / wc
         phase_lag = math.degrees(wc * t_eq)
         pm = 90.0 - math.degrees(math.atan(1.0 / settings.speed_integral_ratio)) - phase_lag
-        text = (f"Bandwidth separation (common practice): speed crossover = current bandwidth / "
-                f"{settings.current_to_speed_ratio:g} = {wc / (2 * math.pi):.4g} Hz; Kp = J*wc/Kt puts |L| = 1 "
+        how = (f"current bandwidth / {settings.current_to_speed_ratio:g}" if settings.speed_crossover_hz <= 0
+               else "the chosen target")
+        text = (f"Bandwidth separation (common practice): speed crossover = {how} = {wc / (2 * math.pi):.4g} Hz; Kp = J*wc/Kt puts |L| = 1 "
                 f"there on the rigid-body plant Kt/(J*s); the PI zero sits {settings.speed_integral_ratio:g}x "
                 f"below (Ti = {ti * 1e3:.4g} ms). Estimated phase margin ~{pm:.3g} deg with Teq = "
                 f"{t_eq * 1e6:.4g} us. J includes the reflected load ({axis.inertia_ratio:.3g}:1).")
@@ -186,7 +193,10 @@ def tune_speed(axis: Axis, current: PI, settings: TuningSettings,
 def tune_position(axis: Axis, speed_crossover_hz: float, settings: TuningSettings) -> tuple[PositionGains, Proposal]:
     """Position P gain in (rad/s)/rad from separation, and the feedforward fractions."""
     kp = 2.0 * math.pi * speed_crossover_hz / settings.speed_to_position_ratio
-    text = (f"Separation (common practice): position gain = speed crossover / {settings.speed_to_position_ratio:g} "
+    how = f"speed crossover / {settings.speed_to_position_ratio:g}"
+    if settings.position_crossover_hz > 0:
+        kp, how = 2.0 * math.pi * settings.position_crossover_hz, "2*pi * the chosen crossover"
+    text = (f"Separation (common practice): position gain = {how} "
             f"= {kp:.4g} 1/s (crossover ~{kp / (2 * math.pi):.3g} Hz with an ideal speed loop). Velocity feedforward "
             f"{settings.velocity_ff:.0%} and acceleration feedforward {settings.acceleration_ff:.0%} of "
             f"J_total/Kt take the following error off the feedback loop during moves.")
@@ -215,3 +225,29 @@ def propose_gains(axis: Axis, settings: TuningSettings, base: GainSet | None = N
         note="; ".join(f"{p.loop}: {p.rule}" for p in (p_current, p_speed, p_position)),
     )
     return gains, (p_current, p_speed, p_position)
+
+
+# Preset [tuning] keys (see core.presets.TUNING_UNITS / TUNING_CHOICES) -> TuningSettings fields.
+_TUNING_KEYS = {
+    "current_rule": "current_rule",
+    "speed_rule": "speed_rule",
+    "current_bandwidth": "current_bandwidth_hz",
+    "current_phase_margin": "current_phase_margin_deg",
+    "speed_bandwidth": "speed_crossover_hz",
+    "speed_separation": "current_to_speed_ratio",
+    "symmetric_optimum_a": "symmetric_optimum_a",
+    "position_bandwidth": "position_crossover_hz",
+    "position_separation": "speed_to_position_ratio",
+}
+
+
+def tuning_from_dict(values: dict) -> TuningSettings:
+    """TuningSettings from a preset's ``[tuning]`` table (already in SI, see core.presets)."""
+    kwargs = {}
+    for key, value in values.items():
+        if key == "speed_phase_margin":
+            continue    # kept in the file for the robust auto-tuner; the rules here do not use it
+        if key not in _TUNING_KEYS:
+            raise InputError(f"tuning.{key}", value, "one of " + ", ".join(_TUNING_KEYS))
+        kwargs[_TUNING_KEYS[key]] = value
+    return TuningSettings(**kwargs)
