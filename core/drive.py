@@ -89,7 +89,7 @@ class Drive:
             require_range(f"drive.{name}", getattr(self, name), 0.0, 10.0, "samples")
         for name in ("current_delay_s", "speed_delay_s", "position_delay_s"):
             value = getattr(self, name)
-            if not math.isnan(value):
+            if not (isinstance(value, float) and math.isnan(value)):
                 require_range(f"drive.{name}", value, 0.0, 1.0, "s")
         require_nonnegative("drive.current_filter", self.current_filter_hz, "Hz")
         require_range("drive.encoder_counts_per_rev", self.encoder_counts_per_rev, 4.0, 2.0 ** 40, "counts")

@@ -34,6 +34,17 @@ def require_positive(field: str, value: float, unit: str) -> float:
     return v
 
 
+def require_positive_or_inf(field: str, value: float, unit: str) -> float:
+    """Return ``value`` as float if > 0 (inf allowed: "not rated"), else raise :class:`InputError`."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(field, value, f"a number in {unit}") from None
+    if not v > 0.0:
+        raise InputError(field, value, f"a positive value in {unit} (or leave it out)")
+    return v
+
+
 def require_nonnegative(field: str, value: float, unit: str) -> float:
     """Return ``value`` as float if finite and >= 0, else raise :class:`InputError`."""
     v = _finite(field, value, unit)

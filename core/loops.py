@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from functools import cached_property
+from functools import cached_property, lru_cache
 
 import numpy as np
 
@@ -135,6 +135,27 @@ def pi_controller(alg, kp: float, ki: float):
     return alg.tf([kp, ki], [1.0, 0.0]) if ki > 0 else kp
 
 
+@lru_cache(maxsize=64)
+def mechanics_polynomials(axis: Axis) -> tuple:
+    """Numerators of w_m/T_m, w_m/T_l, w_l/T_m, w_l/T_l, s*w_m/T_m and their common denominator.
+
+    Coefficients highest power first, motor side, SI. Rigid: 1/((JM+JL) s + B).
+    Two-mass (shaft ``Ks = c + k/s``, multiplied through by s)::
+
+        den = s (JM s + BM)(JL s + BL) + (c s + k)((JM + JL) s + BM + BL)
+        w_m/T_m = (JL s^2 + (BL + c) s + k) / den
+
+    which is the form in Saarakkala & Hinkkanen, IEEE Trans. Ind. Appl., 2015, when BM = BL = 0.
+    """
+    jm, bm = axis.motor.inertia_kgm2, axis.motor.viscous_friction_nm_s_per_rad
+    jl, bl = axis.load_inertia_kgm2, axis.load_viscous_nm_s_per_rad
+    if not axis.load.compliant:
+        return (1.0,), (-1.0,), (1.0,), (-1.0,), (1.0, 0.0), (jm + jl, bm + bl)
+    c, k = axis.damping_nm_s_per_rad, axis.stiffness_nm_per_rad
+    den = (jm * jl, jm * bl + bm * jl + c * (jm + jl), bm * bl + c * (bm + bl) + k * (jm + jl), k * (bm + bl))
+    return ((jl, bl + c, k), (-c, -k), (c, k), (-jm, -(bm + c), -k), (jl, bl + c, k, 0.0), den)
+
+
 class CascadeModel:
     """Every transfer function of the cascade, built lazily over one algebra.
 
@@ -155,24 +176,8 @@ class CascadeModel:
         self.delays_s = axis.drive.loop_delays_s()
 
     # --- mechanics: motor/load speed per motor/load torque -----------------------------
-    @cached_property
-    def _mech_poly(self):
-        """Numerators (w_m/T_m, w_m/T_l, w_l/T_m, w_l/T_l, s*w_m/T_m) over one denominator."""
-        a = self.axis
-        jm, bm = a.motor.inertia_kgm2, a.motor.viscous_friction_nm_s_per_rad
-        jl, bl = a.load_inertia_kgm2, a.load_viscous_nm_s_per_rad
-        if not a.load.compliant:
-            den = [jm + jl, bm + bl]
-            return [1.0], [-1.0], [1.0], [-1.0], [1.0, 0.0], den
-        c, k = a.damping_nm_s_per_rad, a.stiffness_nm_per_rad
-        # (Zm ZL + Ks (Zm + ZL)) with Ks = c + k/s, multiplied through by s.
-        den = np.polyadd(np.polymul([jm, bm, 0.0], [jl, bl]), np.polymul([c, k], [jm + jl, bm + bl]))
-        n_mm = [jl, bl + c, k]
-        n_ll = [-jm, -(bm + c), -k]
-        return n_mm, [-c, -k], [c, k], n_ll, [jl, bl + c, k, 0.0], den
-
     def _mech(self, index: int):
-        p = self._mech_poly
+        p = mechanics_polynomials(self.axis)
         return self.alg.tf(p[index], p[5])
 
     @cached_property

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -78,15 +79,20 @@ class LoopMargins:
 
 
 def frequency_grid(axis: Axis, gains: GainSet) -> np.ndarray:
-    """Angular frequencies for the Bode view and the margins, rad/s.
+    """Angular frequencies for the Bode view and the margins, rad/s (a fresh array).
 
     From well below the position loop's gain and the mechanical corner up to the
     current loop's Nyquist frequency, ``POINTS_PER_DECADE`` per decade, with extra
     points packed round any two-mass resonance and anti-resonance.
     """
+    return _grid(axis, gains.position.kp_per_s).copy()
+
+
+@lru_cache(maxsize=32)
+def _grid(axis: Axis, position_kp_per_s: float) -> np.ndarray:
     f_hi = 0.5 * axis.drive.current_rate_hz
     mech_corner = axis.total_viscous_nm_s_per_rad / axis.total_inertia_kgm2 / (2 * math.pi)
-    f_lo = min(0.01 * gains.position.kp_per_s / (2 * math.pi), 1e-4 * f_hi)
+    f_lo = min(0.01 * position_kp_per_s / (2 * math.pi), 1e-4 * f_hi)
     if mech_corner > 0:
         f_lo = min(f_lo, 0.3 * mech_corner)
     f_lo = max(f_lo, 1e-7 * f_hi)
@@ -158,13 +164,17 @@ def _refine(ev: _Evaluator, brackets: list) -> np.ndarray:
     fa = np.array([br[4] for br in brackets])
     fb = np.array([br[5] for br in brackets])
     ref = np.array([br[6] for br in brackets])
+    groups: dict = {}
+    for i, key in enumerate(zip(loop.tolist(), kinds)):
+        groups.setdefault(key, []).append(i)
+    groups = {key: np.array(idx) for key, idx in groups.items()}
     x = b
     for _ in range(_REFINE_STEPS):
         x = np.where(fb != fa, b - fb * (b - a) / (fb - fa), 0.5 * (a + b))
         ols, cls = ev.at_omega(np.exp(x))
         fx = np.empty_like(x)
-        for i, k in enumerate(kinds):
-            fx[i] = _residual(k, ols[loop[i]][i], cls[loop[i]][i], ref[i])
+        for (li, kind), idx in groups.items():
+            fx[idx] = _residual(kind, ols[li][idx], cls[li][idx], ref[idx])
         same = np.sign(fx) == np.sign(fb)
         # Illinois: halve the retained end's residual when the same end is kept twice.
         fa = np.where(same, fa * 0.5, fb)
@@ -250,9 +260,9 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         r_gain = np.log(np.abs(ol))
         for k in _sign_changes(r_gain):
             brackets.append((li, "gain", omega[k], omega[k + 1], r_gain[k], r_gain[k + 1], 0.0))
-        phase = np.unwrap(np.angle(ol))
-        turn = np.floor((phase + np.pi) / (2 * np.pi))
-        for k in np.nonzero(turn[:-1] != turn[1:])[0]:
+        # arg L = -180 deg (mod 360) where L crosses the negative real axis.
+        im = ol.imag
+        for k in np.nonzero((np.signbit(im[:-1]) != np.signbit(im[1:])) & (ol.real[:-1] + ol.real[1:] < 0))[0]:
             r = _residual("phase", ol[k:k + 2], None, 0.0)
             if np.signbit(r[0]) != np.signbit(r[1]):
                 brackets.append((li, "phase", omega[k], omega[k + 1], r[0], r[1], 0.0))

@@ -23,7 +23,7 @@ import math
 from dataclasses import dataclass
 from typing import Literal
 
-from core.errors import InputError, require_nonnegative, require_positive
+from core.errors import InputError, require_nonnegative, require_positive, require_positive_or_inf
 
 MotorKind = Literal["dc", "pmsm"]
 EmfConvention = Literal["line_rms", "line_peak", "phase_rms", "phase_peak"]
@@ -88,11 +88,9 @@ class Motor:
         require_nonnegative("motor.coulomb_friction", self.coulomb_friction_nm, "N*m")
         if not isinstance(self.pole_pairs, int) or isinstance(self.pole_pairs, bool) or not 1 <= self.pole_pairs <= 200:
             raise InputError("motor.pole_pairs", self.pole_pairs, "a whole number from 1 to 200")
-        for name, value in (("continuous_current", self.continuous_current_a),
-                            ("peak_current", self.peak_current_a),
-                            ("max_speed", self.max_speed_rad_s)):
-            if not (value > 0):
-                raise InputError(f"motor.{name}", value, "a positive value (or leave it out)")
+        require_positive_or_inf("motor.continuous_current", self.continuous_current_a, "A")
+        require_positive_or_inf("motor.peak_current", self.peak_current_a, "A")
+        require_positive_or_inf("motor.max_speed", self.max_speed_rad_s, "rad/s")
         if self.peak_current_a < self.continuous_current_a:
             raise InputError("motor.peak_current", self.peak_current_a,
                              f"at least the continuous current ({self.continuous_current_a:g} A)")

@@ -15,8 +15,10 @@ import pint
 from core.errors import InputError
 
 _REGISTRY = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
-# pint spells revolutions "revolution"; engineers also write "rev" and "count".
-_REGISTRY.define("count = revolution / 1 = counts")
+# Engineers write "rev" for a revolution (2*pi rad in pint) and count encoder edges
+# as plain numbers: "count" is dimensionless, not a fraction of a turn.
+_REGISTRY.define("rev = revolution")
+_REGISTRY.define("count = 1 = counts")
 
 
 @lru_cache(maxsize=4096)
