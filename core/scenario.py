@@ -26,7 +26,8 @@ from core.errors import InputError
 from core.units import parse_quantity
 
 KINDS = ("move", "current_step", "speed_step", "load_step", "voltage_step")
-PROFILES = ("trapezoid", "jerk_limited")
+PROFILES = ("trapezoid", "jerk_limited", "s_curve")
+"""Move profiles; "s_curve" is another name for "jerk_limited"."""
 ANTI_WINDUP = ("clamp", "back_calculation", "off")
 MAX_SAMPLES = 10_000_000
 """Largest horizon in current-loop samples; longer runs are refused before allocating."""
@@ -180,6 +181,7 @@ def scenario_from_dict(d: dict, axis: Axis, field_prefix: str = "scenario") -> S
         prof = d.get("profile", "trapezoid")
         if prof not in PROFILES:
             raise InputError(f"{p}.profile", prof, " | ".join(PROFILES))
+        prof = "jerk_limited" if prof == "s_curve" else prof
         kw["profile"] = prof
         for key in ("distance", "speed", "acceleration") + (("jerk",) if prof == "jerk_limited" else ()):
             if key not in d:

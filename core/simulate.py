@@ -75,10 +75,7 @@ from core.errors import InputError
 from core.gains import GainSet
 from core.scenario import MAX_SAMPLES, Scenario, scenario_from_dict
 
-try:  # the flags module re-exports the one Flag type; fall back while it is being written
-    from core.flags import Flag
-except ImportError:  # pragma: no cover
-    from core.flagtypes import Flag
+from core.flagtypes import Flag   # the one Flag type (core.flags re-exports it)
 
 STEP_BAND = 0.02
 """Settling band of a current or speed step: 2 % of the step (common practice)."""
@@ -497,6 +494,27 @@ def simulate_scenario(axis: Axis, gains: GainSet, scenario, field_prefix: str = 
     """
     sc = scenario if isinstance(scenario, Scenario) else scenario_from_dict(scenario, axis, field_prefix)
     return simulate(axis, gains, sc)
+
+
+def simulate_preset_scenario(preset, gains: GainSet, index: int) -> SimulationResult:
+    """Simulate the preset's scenario number ``index`` with ``gains`` on the preset's axis.
+
+    Parameters
+    ----------
+    preset : core.presets.Preset
+        Supplies ``axis`` and ``scenarios`` (dicts of unit strings).
+    gains : GainSet
+    index : int
+        Position in ``preset.scenarios``; errors name ``scenarios[index].<field>``.
+
+    Returns
+    -------
+    SimulationResult
+    """
+    scenarios = preset.scenarios
+    if not isinstance(index, int) or not 0 <= index < len(scenarios):
+        raise InputError("scenario", index, f"an index from 0 to {len(scenarios) - 1}")
+    return simulate_scenario(preset.axis, gains, scenarios[index], f"scenarios[{index}]")
 
 
 def warm_up() -> float:

@@ -364,3 +364,54 @@ def test_json_and_csv(tmp_path):
     assert data.shape == (len(r.time_s), len(j["traces"]))
     assert_allclose(data[:, 0], r.time_s, rtol=1e-8)
     assert [p for p in os.listdir(tmp_path) if p.startswith(".sim-")] == []
+
+
+# --------------------------------------------------------------------------- presets
+def test_demo_preset_scenarios_run_and_some_saturate():
+    """Every stored demo scenario simulates; at least one reaches a limit and one does not."""
+    import glob
+
+    from core.presets import load_preset
+    from core.simulate import simulate_preset_scenario
+
+    saturated, clean = [], []
+    here = os.path.join(os.path.dirname(__file__), "..", "..", "presets", "*.toml")
+    for path in sorted(glob.glob(here)):
+        preset = load_preset(path)
+        for i, sc in enumerate(preset.scenarios):
+            r = simulate_preset_scenario(preset, preset.active_gain_set, i)
+            assert math.isnan(r.diverged_at_s), (path, sc["name"])
+            m = r.metrics
+            hit = m.time_voltage_saturated_s + m.time_current_saturated_s + m.time_speed_saturated_s > 0
+            (saturated if hit else clean).append(sc["name"])
+            assert any(f.message.startswith("no limit reached") for f in r.flags) != hit
+    assert saturated and clean
+
+
+def test_numba_kernel_equals_its_python_source():
+    """The benchmark's pure-Python reference computes the same traces (same source, interpreted)."""
+    from core import sim_kernel as K
+    from core.scenario import scenario_from_dict
+    from core.simulate import _prepare
+
+    ax = compliant_axis()
+    sc = scenario_from_dict(dict(kind="move", distance="1 rev", speed="1000 rpm", acceleration="5000 rad/s^2",
+                                 load_step="0.2 N*m", load_step_time="0.08 s", duration="0.1 s"), ax)
+    pr = _prepare(ax, make_gains(ax, notches=(Notch(400.0),)), sc)
+    outs = []
+    helpers = ("_pi_step", "_biquads", "_friction")
+    saved = {h: getattr(K, h) for h in helpers}
+    for python in (False, True):
+        out = np.zeros((pr.n, K.N_CH))
+        try:
+            if python:
+                for h in helpers:
+                    setattr(K, h, saved[h].py_func)
+            fn = K.run_kernel.py_func if python else K.run_kernel
+            fn(pr.ad, pr.bd, pr.ac, pr.bc, pr.fp, pr.ip, pr.sos_fb, pr.sos_cmd, pr.ref_a, pr.ref_b, pr.ref_c,
+               pr.t_load, out)
+        finally:
+            for h in helpers:
+                setattr(K, h, saved[h])
+        outs.append(out)
+    assert_allclose(outs[0], outs[1], rtol=1e-12, atol=1e-12)
