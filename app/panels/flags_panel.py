@@ -1,0 +1,139 @@
+"""Findings: every violation the core reports, per loop with its severity, and the loop figures."""
+
+from __future__ import annotations
+
+import math
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QBrush, QColor, QFont
+from PySide6.QtWidgets import (QHeaderView, QLabel, QListWidget, QListWidgetItem, QTableWidget,
+                               QTableWidgetItem, QVBoxLayout, QWidget)
+
+from app.session import Session
+from app.theme import LOOP_COLOURS, LOOP_TITLES, SEVERITY_COLOURS
+
+LOOPS = ("current", "speed", "position")
+FIGURES = ("Crossover", "Phase margin", "Gain margin", "Ms", "Bandwidth", "Overshoot", "Settling")
+SEVERITY_WORDS = {"error": "ERROR", "warning": "WARNING", "info": "NOTE"}
+FLAG_ROLE = Qt.ItemDataRole.UserRole + 1
+
+
+def _hz(f: float) -> str:
+    if f is None or not math.isfinite(f):
+        return "—"
+    return f"{f / 1000:.3g} kHz" if f >= 1000 else f"{f:.3g} Hz"
+
+
+def _figures(analysis, loop: str) -> tuple[str, ...]:
+    m, st = analysis.margins[loop], analysis.steps[loop]
+    pm = "∞" if not math.isfinite(m.phase_margin_deg) else f"{m.phase_margin_deg:.1f}°"
+    gm = "∞" if not math.isfinite(m.gain_margin_db) else f"{m.gain_margin_db:.1f} dB"
+    settle = st.settling_time_s
+    settle_text = "—" if not math.isfinite(settle) else (f"{settle * 1e3:.3g} ms" if settle < 1 else f"{settle:.3g} s")
+    return (_hz(m.crossover_hz), pm, gm, f"{m.sensitivity_peak:.2f}", _hz(m.bandwidth_hz),
+            f"{st.overshoot_pct:.3g} %", settle_text)
+
+
+class FlagsPanel(QWidget):
+    """"Findings" panel.
+
+    Signals
+    -------
+    flag_selected(object)
+        The user picked a finding (a core Flag), or None.
+    """
+
+    flag_selected = Signal(object)
+
+    def __init__(self, session: Session, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.session = session
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(6, 6, 6, 6)
+        self.status = QLabel()
+        self.status.setObjectName("flags_status")
+        self.status.setWordWrap(True)
+        layout.addWidget(self.status)
+        self.list = QListWidget()
+        self.list.setObjectName("flags_list")
+        self.list.setWordWrap(True)
+        self.list.setAlternatingRowColors(False)
+        self.list.currentItemChanged.connect(self._picked)
+        layout.addWidget(self.list, 1)
+        heading = QLabel("Loop figures")
+        heading.setProperty("role", "heading")
+        layout.addWidget(heading)
+        self.table = QTableWidget(len(FIGURES), len(LOOPS))
+        self.table.setObjectName("figures")
+        self.table.setHorizontalHeaderLabels([LOOP_TITLES[l].replace(" loop", "") for l in LOOPS])
+        self.table.setVerticalHeaderLabels(FIGURES)
+        self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
+        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Stretch)
+        self.table.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        for r in range(len(FIGURES)):
+            for c, loop in enumerate(LOOPS):
+                item = QTableWidgetItem("")
+                item.setTextAlignment(Qt.AlignmentFlag.AlignCenter)
+                self.table.setItem(r, c, item)
+        for c, loop in enumerate(LOOPS):
+            self.table.horizontalHeaderItem(c).setForeground(QBrush(QColor(LOOP_COLOURS[loop])))
+        self.table.verticalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Fixed)
+        self.table.verticalHeader().setDefaultSectionSize(24)
+        self.table.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.table.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.table.setFixedHeight(24 * len(FIGURES) + self.table.horizontalHeader().sizeHint().height() + 4)
+        layout.addWidget(self.table)
+        self._flags = None
+        self.flags: tuple = ()
+        session.results_ready.connect(self.show_results)
+        session.error.connect(self.show_error)
+        if session.analysis is not None:
+            self.show_results(session.analysis)
+
+    @property
+    def all_pass(self) -> bool:
+        return not self.flags
+
+    def show_results(self, analysis) -> None:
+        for c, loop in enumerate(LOOPS):
+            for r, text in enumerate(_figures(analysis, loop)):
+                item = self.table.item(r, c)
+                if item.text() != text:
+                    item.setText(text)
+        if analysis.flags == self._flags:
+            return
+        self._flags = self.flags = analysis.flags
+        self.list.blockSignals(True)
+        self.list.clear()
+        if not analysis.flags:
+            self.status.setText("✔  All checks pass: every loop meets its margin, separation and sizing targets.")
+            self.status.setStyleSheet(f"color: {SEVERITY_COLOURS['ok']}; font-weight: bold; padding: 4px;")
+        else:
+            counts = {s: sum(f.severity == s for f in analysis.flags) for s in ("error", "warning", "info")}
+            words = ", ".join(f"{n} {s}{'s' if n > 1 else ''}" for s, n in counts.items() if n)
+            worst = analysis.worst_severity
+            self.status.setText(f"▲  {words} — select one to see where it shows.")
+            self.status.setStyleSheet(f"color: {SEVERITY_COLOURS[worst]}; font-weight: bold; padding: 4px;")
+            for loop in LOOPS + ("axis",):
+                mine = [f for f in analysis.flags if f.loop == loop]
+                if not mine:
+                    continue
+                head = QListWidgetItem(LOOP_TITLES.get(loop, loop))
+                font = QFont(head.font())
+                font.setBold(True)
+                head.setFont(font)
+                head.setForeground(QBrush(QColor(LOOP_COLOURS.get(loop, "#444"))))
+                head.setFlags(Qt.ItemFlag.NoItemFlags)
+                self.list.addItem(head)
+                for flag in mine:
+                    item = QListWidgetItem(f"{SEVERITY_WORDS.get(flag.severity, flag.severity)}  {flag.message}")
+                    item.setForeground(QBrush(QColor(SEVERITY_COLOURS.get(flag.severity, "#444"))))
+                    item.setData(FLAG_ROLE, flag)
+                    self.list.addItem(item)
+        self.list.blockSignals(False)
+
+    def show_error(self, text: str) -> None:
+        self.status.setToolTip(text)
+
+    def _picked(self, item, _previous) -> None:
+        self.flag_selected.emit(item.data(FLAG_ROLE) if item is not None else None)

@@ -1,0 +1,1 @@
+"""pyqtgraph views of the analysis, one kind of plot per file."""

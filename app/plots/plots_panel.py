@@ -1,0 +1,134 @@
+"""The response views: one tab of loop plots (step, |L|, ∠L per loop), one of disturbance plots,
+and the move simulation when the core has it. Items are created once and fed with setData."""
+
+from __future__ import annotations
+
+import pyqtgraph as pg
+from PySide6.QtWidgets import QTabWidget, QWidget
+
+from app.flag_kinds import flag_kind
+from app.plots.bode_plot import BodePlots
+from app.plots.disturbance_plot import LoadStepPlots
+from app.plots.step_plot import StepPlot
+from app.plots.stiffness_plot import StiffnessPlot
+from app.session import Session
+from app.theme import CARD
+
+LOOPS = ("current", "speed", "position")
+
+
+def _layout_widget(name: str) -> pg.GraphicsLayoutWidget:
+    w = pg.GraphicsLayoutWidget()
+    w.setObjectName(name)
+    w.setBackground(CARD)
+    w.ci.setContentsMargins(4, 4, 4, 4)
+    w.ci.setSpacing(6)
+    return w
+
+
+class PlotsPanel(QTabWidget):
+    """"Responses" tabs. Ranges refit after each result unless held (a slider is being dragged)."""
+
+    def __init__(self, session: Session, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.session = session
+        self.setObjectName("plots")
+        self.loops_view = _layout_widget("loops_view")
+        self.steps: dict[str, StepPlot] = {}
+        self.bode: dict[str, BodePlots] = {}
+        for col, loop in enumerate(LOOPS):
+            self.steps[loop] = StepPlot(self.loops_view.addPlot(row=0, col=col), loop)
+        for col, loop in enumerate(LOOPS):
+            mag = self.loops_view.addPlot(row=1, col=col)
+            phase = self.loops_view.addPlot(row=2, col=col)
+            self.bode[loop] = BodePlots(mag, phase, loop)
+        self.addTab(self.loops_view, "Loops")
+        self.disturbance_view = _layout_widget("disturbance_view")
+        self.load_step = LoadStepPlots(self.disturbance_view.addPlot(row=0, col=0),
+                                       self.disturbance_view.addPlot(row=1, col=0))
+        self.stiffness = StiffnessPlot(self.disturbance_view.addPlot(row=0, col=1, rowspan=2))
+        self.addTab(self.disturbance_view, "Disturbance")
+        self.move = None
+        if session.simulation_available:
+            try:
+                from app.plots.move_plot import MovePlots
+                self.move_view = _layout_widget("move_view")
+                self.move = MovePlots(self.move_view)
+                self.addTab(self.move_view, "Move")
+                session.simulation_ready.connect(self._simulation)
+            except Exception:  # noqa: BLE001 - the move view is optional
+                self.move = None
+        self.held = False
+        self.selected = None
+        self.update_count = 0
+        session.results_ready.connect(self.show_results)
+        session.preset_loaded.connect(self._preset_loaded)
+        if session.analysis is not None:
+            self.show_results(session.analysis)
+
+    def _preset_loaded(self) -> None:
+        self.held = False
+
+    def show_results(self, analysis) -> None:
+        """Feed every plot the new result (setData only) and colour what the flags point at."""
+        self.update_count += 1
+        axis = self.session.axis
+        for loop in LOOPS:
+            self.steps[loop].update(analysis)
+            self.bode[loop].update(analysis, axis)
+        self.load_step.update(analysis)
+        self.stiffness.update(analysis, axis)
+        self._alerts(analysis.flags)
+        if not self.held:
+            self.fit()
+
+    def _alerts(self, flags) -> None:
+        per_loop: dict[str, dict[str, str]] = {loop: {} for loop in LOOPS}
+        rank = {"error": 0, "warning": 1, "info": 2}
+        for flag in flags:
+            if flag.loop in per_loop:
+                kinds = per_loop[flag.loop]
+                kind = flag_kind(flag)
+                if kind not in kinds or rank.get(flag.severity, 3) < rank.get(kinds[kind], 3):
+                    kinds[kind] = flag.severity
+        for loop in LOOPS:
+            self.bode[loop].set_alerts(per_loop[loop])
+            self.steps[loop].set_alert(per_loop[loop].get("unstable"))
+        unstable = [a["unstable"] for a in per_loop.values() if "unstable" in a]
+        self.load_step.set_alert(unstable[0] if unstable else None)
+
+    def fit(self) -> None:
+        for loop in LOOPS:
+            self.steps[loop].fit()
+            self.bode[loop].fit()
+        self.load_step.fit()
+        self.stiffness.fit()
+        if self.move is not None:
+            self.move.fit()
+
+    def hold_ranges(self) -> None:
+        """Keep axes still while a slider is dragged (no re-ticking on every frame)."""
+        self.held = True
+
+    def release_ranges(self) -> None:
+        self.held = False
+        self.fit()
+
+    def highlight(self, flag) -> None:
+        """Bring the plot a chosen finding is about to the front."""
+        self.selected = flag
+        if flag is None:
+            return
+        kind = flag_kind(flag)
+        if flag.loop in LOOPS or kind in ("unstable", "phase_margin", "gain_margin"):
+            self.setCurrentWidget(self.loops_view)
+
+    def _simulation(self, result) -> None:
+        if self.move is None:
+            return
+        if isinstance(result, Exception):
+            self.move.show_error(str(result))
+        else:
+            self.move.update(result, self.session.axis)
+            if not self.held:
+                self.move.fit()

@@ -1,0 +1,45 @@
+"""Dynamic stiffness at the load: how hard the closed axis pushes back, over frequency."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pyqtgraph as pg
+
+from app.plots.style import GRID_PEN, LOOP_PEN, curve, styled_plot, vline
+
+
+class StiffnessPlot:
+    """|load torque / load position| against frequency, log-log."""
+
+    def __init__(self, plot: pg.PlotItem):
+        self.plot = plot
+        styled_plot(plot, "Dynamic stiffness at the load", "Frequency", "Hz", "|ΔF / Δx|", None)
+        plot.setLogMode(x=True, y=True)
+        plot.getAxis("bottom").enableAutoSIPrefix(False)
+        for d in range(-3, 6):
+            vline(plot, float(d), GRID_PEN)
+        self.curve = curve(plot, LOOP_PEN["axis"])
+        self._data = None
+        self._unit = None
+
+    def update(self, analysis, axis) -> None:
+        unit = "N/m" if axis.load.motion == "linear" else "N·m/rad"
+        if unit != self._unit:
+            self._unit = unit
+            self.plot.setLabel("left", f"|ΔF / Δx| ({unit})")
+        f, k = analysis.stiffness_hz, analysis.dynamic_stiffness
+        ok = np.isfinite(k) & (k > 0)
+        if not ok.all():
+            f, k = f[ok], k[ok]
+        self._data = (f, k)
+        self.curve.setData(f, k)
+
+    def fit(self) -> None:
+        if self._data is None or len(self._data[0]) < 2:
+            return
+        f, k = self._data
+        lo, hi = math.log10(float(k.min())), math.log10(float(k.max()))
+        self.plot.vb.setRange(xRange=(math.log10(f[0]), math.log10(f[-1])), yRange=(lo - 0.2, hi + 0.2),
+                              padding=0)

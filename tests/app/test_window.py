@@ -1,0 +1,28 @@
+"""The window opens on the demo axis with every view fed, and survives many repaints."""
+
+from __future__ import annotations
+
+from PySide6.QtWidgets import QApplication
+
+
+def test_window_opens_on_demo_with_results(window):
+    s = window.session
+    assert s.analysis is not None
+    assert window.plots.update_count >= 1
+    assert "Loopwright" in window.windowTitle()
+    curve = window.plots.bode["speed"].mag_curve
+    assert len(curve.xData) == len(s.analysis.frequency.omega_rad_s)
+
+
+def test_repaint_full_window_200_times(window, qtbot):
+    # PySide6 6.12.0 + pyqtgraph 0.14 aborted in paint ("none_dealloc") on exactly this.
+    s = window.session
+    slider = window.gains_panel.controls["speed.kp"].slider
+    start = slider.value()
+    for i in range(200):
+        slider.setValue(start + (i % 40) - 20)
+        s.flush()
+        window.repaint()
+        QApplication.processEvents()
+    assert s.analysis is not None
+    assert window.plots.update_count > 100
