@@ -29,6 +29,8 @@ from core.loops import CascadeModel, FrequencyAlgebra
 LOOPS = ("current", "speed", "position")
 POINTS_PER_DECADE = 100
 _REFINE_STEPS = 3
+_REFINE_MAX_STEPS = 30
+_DIP_ROUNDS = 3
 
 
 @dataclass(frozen=True)
@@ -164,23 +166,73 @@ def _refine(ev: _Evaluator, brackets: list) -> np.ndarray:
     fa = np.array([br[4] for br in brackets])
     fb = np.array([br[5] for br in brackets])
     ref = np.array([br[6] for br in brackets])
-    groups: dict = {}
-    for i, key in enumerate(zip(loop.tolist(), kinds)):
-        groups.setdefault(key, []).append(i)
-    groups = {key: np.array(idx) for key, idx in groups.items()}
-    x = b
-    for _ in range(_REFINE_STEPS):
-        x = np.where(fb != fa, b - fb * (b - a) / (fb - fa), 0.5 * (a + b))
-        ols, cls = ev.at_omega(np.exp(x))
-        fx = np.empty_like(x)
-        for (li, kind), idx in groups.items():
-            fx[idx] = _residual(kind, ols[li][idx], cls[li][idx], ref[idx])
-        same = np.sign(fx) == np.sign(fb)
+    kinds = np.array(kinds)
+    x = b.copy()
+    fx = fb.copy()
+    values = [np.zeros(len(brackets), complex) for _ in range(3)]
+    active = np.arange(len(brackets))
+    for step in range(_REFINE_MAX_STEPS):
+        xa = np.where(fb[active] != fa[active],
+                      b[active] - fb[active] * (b[active] - a[active]) / (fb[active] - fa[active]),
+                      0.5 * (a[active] + b[active]))
+        ols, cls = ev.at_omega(np.exp(xa))
+        fxa = np.empty_like(xa)
+        for li in range(3):
+            for kind in ("gain", "phase", "bw"):
+                sel = np.nonzero((loop[active] == li) & (kinds[active] == kind))[0]
+                if len(sel):
+                    fxa[sel] = _residual(kind, ols[li][sel], cls[li][sel], ref[active][sel])
+        for li in range(3):
+            values[li][active] = ols[li]
+        x[active], fx[active] = xa, fxa
+        same = np.sign(fxa) == np.sign(fb[active])
         # Illinois: halve the retained end's residual when the same end is kept twice.
-        fa = np.where(same, fa * 0.5, fb)
-        a = np.where(same, a, b)
-        b, fb = x, fx
-    return np.exp(x), ols
+        fa[active] = np.where(same, fa[active] * 0.5, fb[active])
+        a[active] = np.where(same, a[active], b[active])
+        b[active], fb[active] = xa, fxa
+        if step + 1 >= _REFINE_STEPS:
+            # Past the usual few steps, go on only with crossings not yet converged
+            # (sharp resonances): |residual| is a log-magnitude or an angle in rad.
+            active = active[np.abs(fxa) > 1e-9]
+            if len(active) == 0:
+                break
+    return np.exp(x), values
+
+
+def _dip_brackets(omega: np.ndarray, distance: np.ndarray, count: int = 3):
+    """Triples (log w, log |1+L|) round the ``count`` deepest local minima of ``distance``."""
+    d = distance
+    inner = np.nonzero((d[1:-1] <= d[:-2]) & (d[1:-1] <= d[2:]))[0] + 1
+    if len(inner) == 0:
+        inner = np.array([min(max(int(np.argmin(d)), 1), len(d) - 2)])
+    inner = inner[np.argsort(d[inner])[:count]]
+    idx = inner[:, None] + np.array([-1, 0, 1])[None, :]
+    return np.log(omega[idx]), np.log(d[idx])
+
+
+def _parabola_vertex(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Abscissa of the parabola through each row's three points, kept inside the bracket."""
+    x0, x1, x2 = x.T
+    y0, y1, y2 = y.T
+    num = (x1 - x0) ** 2 * (y1 - y2) - (x1 - x2) ** 2 * (y1 - y0)
+    den = (x1 - x0) * (y1 - y2) - (x1 - x2) * (y1 - y0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        v = x1 - 0.5 * num / den
+    # Fall back to the midpoint of the wider half when the parabola is flat or convex down.
+    wide = np.where(x2 - x1 > x1 - x0, 0.5 * (x1 + x2), 0.5 * (x0 + x1))
+    v = np.where(np.isfinite(v) & (v > x0) & (v < x2) & (np.abs(v - x1) > 1e-12), v, wide)
+    return v
+
+
+def _narrow(x: np.ndarray, y: np.ndarray, v: np.ndarray, yv: np.ndarray):
+    """Replace one end of each bracket by the new point, keeping the minimum in the middle."""
+    x, y = x.copy(), y.copy()
+    for r in range(len(v)):
+        pts = sorted(zip(np.append(x[r], v[r]), np.append(y[r], yv[r])))
+        k = min(max(int(np.argmin([p[1] for p in pts])), 1), 2)
+        x[r] = [p[0] for p in pts[k - 1:k + 2]]
+        y[r] = [p[1] for p in pts[k - 1:k + 2]]
+    return x, y
 
 
 def _sign_changes(r: np.ndarray) -> np.ndarray:
@@ -274,27 +326,27 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
             brackets.append((li, "bw", omega[k], omega[k + 1], r_bw[k], r_bw[k + 1], ref))
     refined, refined_ols = _refine(ev, brackets)
 
-    # Sensitivity peaks: the grid maximum, then a parabola in log(w) through its neighbours.
-    peak_idx = [int(np.argmax(np.abs(1.0 / (1.0 + ol)))) for ol in ols]
-    peak_w = []
-    for k in peak_idx:
-        k = min(max(k, 1), n - 2)
-        x = np.log(omega[k - 1:k + 2])
-        y = [np.log(abs(1.0 / (1.0 + ols[i][k - 1:k + 2]))) for i in range(3)]
-        peak_w.append((k, x, y))
-    vertices = []
-    for li, (k, x, y) in enumerate(peak_w):
-        ys = y[li]
-        denom = (x[0] - x[1]) * (x[0] - x[2]) * (x[1] - x[2])
-        a2 = (x[2] * (ys[1] - ys[0]) + x[1] * (ys[0] - ys[2]) + x[0] * (ys[2] - ys[1])) / denom
-        b2 = (x[2] ** 2 * (ys[0] - ys[1]) + x[1] ** 2 * (ys[2] - ys[0]) + x[0] ** 2 * (ys[1] - ys[2])) / denom
-        xv = -b2 / (2 * a2) if a2 < 0 else x[1]
-        vertices.append(math.exp(min(max(xv, x[0]), x[2])))
-    # The Nyquist arc round the origin and the three parabola vertices in one evaluation.
+    # Sensitivity peaks: the deepest local minima of |1 + L| on the grid, each narrowed by
+    # successive parabolic interpolation in log(w); the refined crossovers count too.
     theta = np.linspace(-0.5 * np.pi, 0.5 * np.pi, 33)
-    extra, _ = ev.at_s(np.concatenate([omega[0] * np.exp(1j * theta), 1j * np.array(vertices)]))
-    arc = [e[:len(theta)] for e in extra]
-    vert_ols = [e[len(theta):] for e in extra]
+    arc_s = omega[0] * np.exp(1j * theta)
+    dips = [_dip_brackets(omega, np.abs(1.0 + ol)) for ol in ols]
+    arc = None
+    for round_ in range(_DIP_ROUNDS):
+        vertices = np.concatenate([_parabola_vertex(x, y) for x, y in dips])
+        if round_ == 0:
+            # The Nyquist arc round the origin rides along in the first evaluation.
+            extra, _ = ev.at_s(np.concatenate([arc_s, 1j * np.exp(vertices)]))
+            arc = [e[:len(theta)] for e in extra]
+            at_vertex = [e[len(theta):] for e in extra]
+        else:
+            at_vertex, _ = ev.at_omega(np.exp(vertices))
+        start = 0
+        for li, (x, y) in enumerate(dips):
+            count = len(x)
+            values = np.log(np.abs(1.0 + at_vertex[li][start:start + count]))
+            dips[li] = _narrow(x, y, vertices[start:start + count], values)
+            start += count
 
     turns = nyquist_count(ev, np.concatenate([omega, tail]), ols_all, arc)
 
@@ -330,10 +382,11 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
             gm, gm_w = float(gms[j]), pw[j]
         else:
             gm, gm_w = math.inf, math.nan
-        k = peak_idx[li]
-        ms_grid = float(abs(1.0 / (1.0 + ols[li][k])))
-        ms_vertex = float(abs(1.0 / (1.0 + vert_ols[li][li])))
-        ms, ms_w = (ms_vertex, vertices[li]) if ms_vertex > ms_grid else (ms_grid, omega[k])
+        x, y = dips[li]
+        candidates_w = np.concatenate([np.exp(x[:, 1]), np.array(gw + pw)])
+        candidates_d = np.concatenate([np.exp(y[:, 1]), np.abs(1.0 + at[g_sel + p_sel])])
+        j = int(np.argmin(candidates_d))
+        ms, ms_w = float(1.0 / candidates_d[j]), float(candidates_w[j])
         out[name] = LoopMargins(
             gain_crossovers_hz=tuple(float(w / (2 * math.pi)) for w in gw),
             phase_crossovers_hz=tuple(float(w / (2 * math.pi)) for w in pw),
