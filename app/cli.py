@@ -152,11 +152,11 @@ def cmd_simulate(args, out) -> int:
     from core import simulate
 
     preset = _load(args.preset)
-    gains = preset.gain_set(args.set) if args.set else preset.active_gain_set
     names = [s.get("name") for s in preset.scenarios]
     if args.scenario not in names:
         raise InputError("--scenario", args.scenario, "one of the preset's scenarios: " + (", ".join(map(str, names)) or "(none)"))
     index = names.index(args.scenario)
+    gains = preset.gain_set(args.set or preset.scenarios[index].get("gain_set") or preset.active)
     result = simulate.simulate_preset_scenario(preset, gains, index)
     if args.csv:
         simulate.write_csv(result, args.csv)
@@ -197,7 +197,7 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("simulate", help="simulate a stored scenario in time")
     p.add_argument("preset")
     p.add_argument("--scenario", required=True, help="scenario name from the preset")
-    p.add_argument("--set", help="gain set name (default: the active one)")
+    p.add_argument("--set", help="gain set name (default: the one the scenario names, else the active one)")
     p.add_argument("--json", action="store_true")
     p.add_argument("--csv", help="write the traces to this CSV file")
     p.set_defaults(func=cmd_simulate)

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from core.axis import Axis
-from core.flags import Flag, Targets, margin_flags, step_flags
+from core.flags import Flag, Targets, margin_flags, quantisation_flags, step_flags
 from core.gains import GainSet
 from core.margins import LOOPS, FrequencyData, LoopMargins, loop_margins
 from core.motor import ConstantsCheck
@@ -104,6 +104,7 @@ def analyse(axis: Axis, gains: GainSet, targets: Targets | None = None,
     stiffness = 1.0 / np.abs(freq.dynamic_compliance)
     flags = margin_flags(axis, margins, targets, constants)
     flags += step_flags({k: v for k, v in steps.items() if margins[k].stable}, targets)
+    flags += quantisation_flags(axis, gains, targets)
     return Analysis(margins, freq, steps, load, omega / (2 * math.pi), stiffness, tuple(flags))
 
 

@@ -6,12 +6,13 @@ import math
 from dataclasses import dataclass
 
 from core.axis import Axis
+from core.gains import GainSet
 from core.errors import InputError, require_range
 from core.flagtypes import Flag
 from core.margins import LOOPS, LoopMargins
 from core.motor import ConstantsCheck
 
-__all__ = ["Flag", "Targets", "margin_flags", "step_flags", "targets_from_dict"]
+__all__ = ["Flag", "Targets", "margin_flags", "quantisation_flags", "step_flags", "targets_from_dict"]
 
 
 @dataclass(frozen=True)
@@ -39,6 +40,7 @@ class Targets:
     position_bandwidth_min_hz: float = 0.0
     current_crossover_max_fraction: float = 0.1
     resonance_clearance: float = 2.0
+    jitter_max_fraction: float = 0.1
     load_step_nm: float = math.nan
 
     def __post_init__(self):
@@ -54,6 +56,7 @@ class Targets:
         require_range("targets.current_crossover_max_fraction", self.current_crossover_max_fraction, 0.01, 0.5,
                       "(of the current sample rate)")
         require_range("targets.resonance_clearance", self.resonance_clearance, 1.0, 100.0, "")
+        require_range("targets.jitter_max_fraction", self.jitter_max_fraction, 0.0, 1.0, "(of the current limit)")
 
     def phase_margin_deg(self, loop: str) -> float:
         """The phase-margin target of ``loop``, deg."""
@@ -89,6 +92,24 @@ def targets_from_dict(values: dict) -> Targets:
 
 def _hz(f: float) -> str:
     return f"{f / 1000:.3g} kHz" if f >= 1000 else f"{f:.3g} Hz"
+
+
+def quantisation_flags(axis: Axis, gains: GainSet, targets: Targets) -> list[Flag]:
+    """Current-command jitter from the speed estimate's quantisation step.
+
+    One encoder count per speed sample is a speed step ``2 pi / (N Ts)`` (derived);
+    times the speed Kp it is a current-command step. Above ``jitter_max_fraction`` of
+    the current limit it is flagged (common practice: keep it to a few per cent).
+    """
+    quantum = axis.drive.speed_quantum_rad_s()
+    jitter = gains.speed.pi.kp * quantum
+    limit = axis.current_limit_a
+    if jitter > targets.jitter_max_fraction * limit:
+        return [Flag("speed", "warning",
+                     f"One encoder count per speed sample is {quantum:.3g} rad/s ({quantum * 60 / (2 * math.pi):.3g} rpm); "
+                     f"times speed Kp it steps the current command by {jitter:.3g} A, {jitter / limit:.0%} of the "
+                     f"{limit:.3g} A limit. Use a finer encoder, a speed filter or a lower Kp.")]
+    return []
 
 
 def margin_flags(axis: Axis, margins: dict[str, LoopMargins], targets: Targets,

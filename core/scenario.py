@@ -34,7 +34,9 @@ MAX_SAMPLES = 10_000_000
 
 _KEYS = {"name", "kind", "profile", "distance", "speed", "acceleration", "jerk", "start_time",
          "step", "step_time", "load_step", "load_step_time", "load_pulse_width", "duration",
-         "limits", "anti_windup"}
+         "limits", "anti_windup", "gain_set"}
+"""``gain_set`` names the preset's gain set the scenario is meant for (read by
+:func:`core.simulate.simulate_preset_scenario`, not by the scenario itself)."""
 
 
 @dataclass(frozen=True)

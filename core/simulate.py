@@ -496,14 +496,15 @@ def simulate_scenario(axis: Axis, gains: GainSet, scenario, field_prefix: str = 
     return simulate(axis, gains, sc)
 
 
-def simulate_preset_scenario(preset, gains: GainSet, index: int) -> SimulationResult:
+def simulate_preset_scenario(preset, gains: GainSet | None, index: int) -> SimulationResult:
     """Simulate the preset's scenario number ``index`` with ``gains`` on the preset's axis.
 
     Parameters
     ----------
     preset : core.presets.Preset
         Supplies ``axis`` and ``scenarios`` (dicts of unit strings).
-    gains : GainSet
+    gains : GainSet or None
+        None: the gain set the scenario names in ``gain_set``, else the active one.
     index : int
         Position in ``preset.scenarios``; errors name ``scenarios[index].<field>``.
 
@@ -514,6 +515,9 @@ def simulate_preset_scenario(preset, gains: GainSet, index: int) -> SimulationRe
     scenarios = preset.scenarios
     if not isinstance(index, int) or not 0 <= index < len(scenarios):
         raise InputError("scenario", index, f"an index from 0 to {len(scenarios) - 1}")
+    if gains is None:
+        named = scenarios[index].get("gain_set")
+        gains = preset.gain_set(named) if named else preset.active_gain_set
     return simulate_scenario(preset.axis, gains, scenarios[index], f"scenarios[{index}]")
 
 
