@@ -168,7 +168,8 @@ def cmd_simulate(args, out) -> int:
     else:
         print(f"{preset.axis.name}: scenario '{args.scenario}' with gain set '{gains.name}'", file=out)
         for key, value in doc.get("metrics", {}).items():
-            print(f"  {key:34} {value}", file=out)
+            shown = f"{value:.4g}" if isinstance(value, float) else ("n/a" if value is None else value)
+            print(f"  {key:34} {shown}", file=out)
         flags = doc.get("flags", [])
         if flags:
             print("flags:", file=out)
