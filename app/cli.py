@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import sys
 from pathlib import Path
 
@@ -95,7 +96,7 @@ def _print_check(result, out) -> None:
 
 def cmd_check(args, out) -> int:
     """Analyse the preset's gain set: margins, responses, flags."""
-    from core.analysis import analyse, analysis_summary
+    from core.analysis import analyse, analysis_summary, axis_summary
 
     preset = _load(args.preset)
     targets, _ = _settings(preset)
@@ -104,7 +105,8 @@ def cmd_check(args, out) -> int:
         raise InputError("gain_sets", "(none)", "at least one [[gain_sets]] table in the preset")
     result = analyse(preset.axis, gains, targets, preset.constants_check)
     if args.json:
-        doc = {"axis": preset.axis.name, "gain_set": gains.name, **analysis_summary(result), "caution": CAUTION}
+        doc = {"axis": preset.axis.name, "axis_derived": axis_summary(preset.axis, preset.constants_check),
+               "gain_set": gains.name, **analysis_summary(result), "caution": CAUTION}
         json.dump(doc, out, indent=2)
         print(file=out)
     else:
@@ -116,7 +118,7 @@ def cmd_check(args, out) -> int:
 
 def cmd_tune(args, out) -> int:
     """Propose gains from the preset's tuning rules and check them."""
-    from core.analysis import analyse, analysis_summary
+    from core.analysis import analyse, analysis_summary, axis_summary
     from core.tuning import propose_gains
 
     preset = _load(args.preset)
@@ -124,7 +126,8 @@ def cmd_tune(args, out) -> int:
     gains, proposals = propose_gains(preset.axis, tuning, preset.active_gain_set, name="proposed")
     result = analyse(preset.axis, gains, targets, preset.constants_check)
     if args.json:
-        doc = {"axis": preset.axis.name, "gains": _gains_json(gains),
+        doc = {"axis": preset.axis.name, "axis_derived": axis_summary(preset.axis, preset.constants_check),
+               "gains": _gains_json(gains),
                "rationale": {p.loop: {"rule": p.rule, "text": p.rationale,
                                       "expected_crossover_hz": p.expected_crossover_hz} for p in proposals},
                **analysis_summary(result), "caution": CAUTION}
@@ -133,8 +136,12 @@ def cmd_tune(args, out) -> int:
         return 0
     a = preset.axis
     print(f"{a.name}: tau_e {a.electrical_time_constant_s * 1e3:.3g} ms, tau_m {a.mechanical_time_constant_s * 1e3:.3g} ms, "
-          f"inertia ratio {a.inertia_ratio:.3g}:1, voltage limit {a.drive.voltage_limit_v:.4g} V, "
-          f"current limit {a.current_limit_a:.4g} A", file=out)
+          f"DC speed gain {a.dc_speed_gain_rad_s_per_v:.4g} rad/s per V, inertia ratio {a.inertia_ratio:.3g}:1, "
+          f"voltage limit {a.drive.voltage_limit_v:.4g} V, current limit {a.current_limit_a:.4g} A", file=out)
+    if a.load.compliant:
+        print(f"  two-mass load: anti-resonance {a.antiresonance_hz:.4g} Hz, resonance {a.resonance_hz:.4g} Hz", file=out)
+    if not preset.constants_check.consistent:
+        print(f"  Kt and Ke disagree by {preset.constants_check.relative_difference:+.1%} after conversion", file=out)
     print("\nproposed gains:", file=out)
     for label, value in _gain_rows(gains):
         print(f"  {label:26} {value}", file=out)
@@ -220,6 +227,10 @@ def main(argv: list[str] | None = None, out=None) -> int:
     except InputError as exc:
         print(f"loopwright: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:
+        # The reader (e.g. `| head`) went away: not an error of ours.
+        sys.stdout = open(os.devnull, "w")
+        return 0
 
 
 if __name__ == "__main__":

@@ -143,3 +143,34 @@ def analysis_summary(result: Analysis) -> dict:
                       "position_error_rad": num(ls.position_error_rad), "recovery_time_s": num(ls.recovery_time_s)},
         "flags": [{"loop": f.loop, "severity": f.severity, "message": f.message} for f in result.flags],
     }
+
+
+def axis_summary(axis: Axis, constants: ConstantsCheck | None = None) -> dict:
+    """What follows from the datasheet values, SI, for reports and ``--json`` output.
+
+    Keys: ``electrical_time_constant_s``, ``mechanical_time_constant_s``,
+    ``dc_speed_gain_rad_s_per_v``, ``no_load_speed_rad_s``, ``total_inertia_kgm2``,
+    ``inertia_ratio``, ``resonance_hz``, ``antiresonance_hz`` (null when rigid),
+    ``voltage_limit_v``, ``current_limit_a``, ``loop_delays_s`` (current, speed,
+    position), ``speed_quantum_rad_s`` and, when known, ``kt_ke_relative_difference``.
+    """
+    def num(x):
+        return None if not math.isfinite(x) else float(x)
+
+    out = {
+        "electrical_time_constant_s": axis.electrical_time_constant_s,
+        "mechanical_time_constant_s": axis.mechanical_time_constant_s,
+        "dc_speed_gain_rad_s_per_v": axis.dc_speed_gain_rad_s_per_v,
+        "no_load_speed_rad_s": axis.no_load_speed_rad_s,
+        "total_inertia_kgm2": axis.total_inertia_kgm2,
+        "inertia_ratio": axis.inertia_ratio,
+        "resonance_hz": num(axis.resonance_hz),
+        "antiresonance_hz": num(axis.antiresonance_hz),
+        "voltage_limit_v": axis.drive.voltage_limit_v,
+        "current_limit_a": num(axis.current_limit_a),
+        "loop_delays_s": list(axis.drive.loop_delays_s()),
+        "speed_quantum_rad_s": axis.drive.speed_quantum_rad_s(),
+    }
+    if constants is not None and math.isfinite(constants.relative_difference):
+        out["kt_ke_relative_difference"] = constants.relative_difference
+    return out
