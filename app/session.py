@@ -145,6 +145,13 @@ class Session(QObject):
         self._timer.setSingleShot(True)
         self._timer.setInterval(0)
         self._timer.timeout.connect(self.recompute)
+        # The time simulation runs as a second stage, after the analysis has been shown.
+        self._sim_timer = QTimer(self)
+        self._sim_timer.setSingleShot(True)
+        self._sim_timer.setInterval(0)
+        self._sim_timer.timeout.connect(self.run_simulation)
+        self.simulation_count = 0
+        self._simulation_stale = False
         self._batch_depth = 0
         self._batch_dirty = False
         self._burst = 0
@@ -440,28 +447,48 @@ class Session(QObject):
             return
         self.analysis = result
         self.results_ready.emit(result)
+        self._simulation_stale = True
         if self.simulate_enabled and self._sim is not None:
-            self._simulate(state)
+            self._sim_timer.start()
 
-    def _simulate(self, state: ModelState) -> None:
-        # The simulation module is another engineer's work in progress: any failure
-        # only hides the move view, it never blocks the analysis.
-        scenario = next((s for s in self._preset.scenarios if s.get("name") == self.scenario_name), None)
-        if scenario is None:
+    def set_simulate_enabled(self, enabled: bool) -> None:
+        """Turn the move simulation on or off (off while a slider is dragged and the move is not shown)."""
+        self.simulate_enabled = enabled
+        if enabled and self._sim is not None and self._simulation_stale:
+            self._sim_timer.start()
+
+    def run_simulation(self) -> None:
+        """Simulate the chosen scenario with the current gains; emits :attr:`simulation_ready`.
+
+        The result is a :class:`core.simulate.SimulationResult`, or an :class:`InputError`
+        saying why the scenario could not run (the move view shows it; nothing else stops).
+        """
+        self._sim_timer.stop()
+        if self._sim is None:
             return
+        index = next((i for i, s in enumerate(self._preset.scenarios) if s.get("name") == self.scenario_name), None)
+        if index is None:
+            return
+        self._simulation_stale = False
+        self.simulation_count += 1
+        state = self._state
         try:
-            result = self._sim.simulate(state.axis, state.gains, scenario)
-        except Exception as err:  # noqa: BLE001
-            self.simulation = None
-            self.simulation_ready.emit(err)
-            return
-        self.simulation = result
+            result = self._sim.simulate_scenario(state.axis, state.gains, self._preset.scenarios[index],
+                                                 f"scenarios[{index}]")
+        except InputError as err:
+            result = err
+        except Exception as err:  # noqa: BLE001 - a simulation failure must not take the window down
+            result = InputError("simulation", type(err).__name__, f"a scenario the simulation can run ({err})")
+        self.simulation = None if isinstance(result, Exception) else result
         self.simulation_ready.emit(result)
 
     def set_scenario(self, name: str) -> None:
+        """Choose which of the preset's scenarios the move view simulates."""
         if name != self.scenario_name:
             self.scenario_name = name
-            self.schedule()
+            self._simulation_stale = True
+            if self._sim is not None:
+                self._sim_timer.start()
 
 
 def _constants_of(motor) -> ConstantsCheck:

@@ -129,7 +129,6 @@ class MainWindow(QMainWindow):
     def _update_title(self) -> None:
         mark = " •" if self.session.dirty else ""
         self.setWindowTitle(f"Loopwright — {self.session.display_name}{mark}")
-        self.setWindowModified(self.session.dirty)
 
     def about(self) -> None:
         QMessageBox.about(self, "About Loopwright", ABOUT_TEXT)

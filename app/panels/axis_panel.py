@@ -93,7 +93,8 @@ class _Row:
 
     def __init__(self, part: str, attr: str, label: str, si: str, display: str, integer: bool):
         self.part, self.attr = part, attr
-        self.edit = QuantityEdit(f"{part}.{attr}", si, display, integer=integer)
+        self.edit = QuantityEdit(f"{part}.{attr}", si, display, integer=integer,
+                                 digits=10 if attr == "encoder_counts_per_rev" else 4)
         self.edit.setObjectName(f"axis:{part}.{attr}")
         self.reason = QLabel()
         self.reason.setProperty("role", "reason")

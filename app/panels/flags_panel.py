@@ -11,6 +11,7 @@ from PySide6.QtWidgets import (QHeaderView, QLabel, QListWidget, QListWidgetItem
 
 from app.session import Session
 from app.theme import LOOP_COLOURS, LOOP_TITLES, SEVERITY_COLOURS
+from core.flagtypes import Flag
 
 LOOPS = ("current", "speed", "position")
 FIGURES = ("Crossover", "Phase margin", "Gain margin", "Ms", "Bandwidth", "Overshoot", "Settling")
@@ -31,7 +32,7 @@ def _figures(analysis, loop: str) -> tuple[str, ...]:
     settle = st.settling_time_s
     settle_text = "—" if not math.isfinite(settle) else (f"{settle * 1e3:.3g} ms" if settle < 1 else f"{settle:.3g} s")
     return (_hz(m.crossover_hz), pm, gm, f"{m.sensitivity_peak:.2f}", _hz(m.bandwidth_hz),
-            f"{st.overshoot_pct:.3g} %", settle_text)
+            "< 0.01 %" if st.overshoot_pct < 0.01 else f"{st.overshoot_pct:.3g} %", settle_text)
 
 
 class FlagsPanel(QWidget):
@@ -85,14 +86,33 @@ class FlagsPanel(QWidget):
         layout.addWidget(self.table)
         self._flags = None
         self.flags: tuple = ()
+        self.sim_flags: tuple = ()
+        self.sim_title = ""
         session.results_ready.connect(self.show_results)
+        session.simulation_ready.connect(self.show_simulation)
+        session.preset_loaded.connect(self._forget_simulation)
         session.error.connect(self.show_error)
         if session.analysis is not None:
             self.show_results(session.analysis)
 
     @property
     def all_pass(self) -> bool:
-        return not self.flags
+        return not any(f.severity in ("error", "warning") for f in self.flags + self.sim_flags)
+
+    def _forget_simulation(self) -> None:
+        self.sim_flags, self.sim_title = (), ""
+
+    def show_simulation(self, result) -> None:
+        """Findings of the move simulation (or why it could not run), under their own heading."""
+        if isinstance(result, Exception):
+            flags = (Flag("axis", "warning", f"The scenario could not be simulated: {result}"),)
+        else:
+            flags = tuple(result.flags)
+        title = f"Move — {self.session.scenario_name}"
+        if flags == self.sim_flags and title == self.sim_title:
+            return
+        self.sim_flags, self.sim_title = flags, title
+        self._render()
 
     def show_results(self, analysis) -> None:
         for c, loop in enumerate(LOOPS):
@@ -103,34 +123,44 @@ class FlagsPanel(QWidget):
         if analysis.flags == self._flags:
             return
         self._flags = self.flags = analysis.flags
+        self._worst = analysis.worst_severity
+        self._render()
+
+    def _render(self) -> None:
         self.list.blockSignals(True)
         self.list.clear()
-        if not analysis.flags:
+        flags = self.flags
+        if self.all_pass:
             self.status.setText("✔  All checks pass: every loop meets its margin, separation and sizing targets.")
             self.status.setStyleSheet(f"color: {SEVERITY_COLOURS['ok']}; font-weight: bold; padding: 4px;")
         else:
-            counts = {s: sum(f.severity == s for f in analysis.flags) for s in ("error", "warning", "info")}
+            both = flags + tuple(f for f in self.sim_flags if f.severity in ("error", "warning"))
+            counts = {s: sum(f.severity == s for f in both) for s in ("error", "warning")}
             words = ", ".join(f"{n} {s}{'s' if n > 1 else ''}" for s, n in counts.items() if n)
-            worst = analysis.worst_severity
+            worst = "error" if counts["error"] else "warning"
             self.status.setText(f"▲  {words} — select one to see where it shows.")
             self.status.setStyleSheet(f"color: {SEVERITY_COLOURS[worst]}; font-weight: bold; padding: 4px;")
-            for loop in LOOPS + ("axis",):
-                mine = [f for f in analysis.flags if f.loop == loop]
-                if not mine:
-                    continue
-                head = QListWidgetItem(LOOP_TITLES.get(loop, loop))
-                font = QFont(head.font())
-                font.setBold(True)
-                head.setFont(font)
-                head.setForeground(QBrush(QColor(LOOP_COLOURS.get(loop, "#444"))))
-                head.setFlags(Qt.ItemFlag.NoItemFlags)
-                self.list.addItem(head)
-                for flag in mine:
-                    item = QListWidgetItem(f"{SEVERITY_WORDS.get(flag.severity, flag.severity)}  {flag.message}")
-                    item.setForeground(QBrush(QColor(SEVERITY_COLOURS.get(flag.severity, "#444"))))
-                    item.setData(FLAG_ROLE, flag)
-                    self.list.addItem(item)
+        for loop in LOOPS + ("axis",):
+            mine = [f for f in flags if f.loop == loop]
+            if mine:
+                self._group(LOOP_TITLES.get(loop, loop), LOOP_COLOURS.get(loop, "#444"), mine)
+        if self.sim_flags:
+            self._group(self.sim_title, LOOP_COLOURS["axis"], self.sim_flags)
         self.list.blockSignals(False)
+
+    def _group(self, title: str, colour: str, flags) -> None:
+        head = QListWidgetItem(title)
+        font = QFont(head.font())
+        font.setBold(True)
+        head.setFont(font)
+        head.setForeground(QBrush(QColor(colour)))
+        head.setFlags(Qt.ItemFlag.NoItemFlags)
+        self.list.addItem(head)
+        for flag in flags:
+            item = QListWidgetItem(f"{SEVERITY_WORDS.get(flag.severity, flag.severity)}  {flag.message}")
+            item.setForeground(QBrush(QColor(SEVERITY_COLOURS.get(flag.severity, "#444"))))
+            item.setData(FLAG_ROLE, flag)
+            self.list.addItem(item)
 
     def show_error(self, text: str) -> None:
         self.status.setToolTip(text)

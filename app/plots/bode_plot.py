@@ -12,7 +12,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
 
-from app.plots.style import (GRID_PEN, LOOP_PEN, NO_BORDER, SEVERITY_BORDER, SEVERITY_PEN, curve,
+from app.plots.style import (DecadeRules, LOOP_PEN, NO_BORDER, SEVERITY_BORDER, SEVERITY_PEN, curve,
                              hline, pen, styled_plot, vline)
 from app.theme import LOOP_COLOURS, LOOP_TITLES, MUTED
 
@@ -35,14 +35,6 @@ def open_loop_db_deg(values: np.ndarray, reference_hz: float, f_hz: np.ndarray) 
     return mag, phase
 
 
-class _DecadeGrid:
-    """Light vertical rules at each decade (cheaper than the built-in grid)."""
-
-    def __init__(self, plot: pg.PlotItem, decades=range(-3, 6)):
-        for d in decades:
-            vline(plot, float(d), GRID_PEN)
-
-
 class BodePlots:
     """The magnitude and phase plots of ``loop`` (two PlotItems, one marker set)."""
 
@@ -55,7 +47,7 @@ class BodePlots:
         for p in (mag, phase):
             p.setLogMode(x=True, y=False)
             p.getAxis("bottom").enableAutoSIPrefix(False)
-            _DecadeGrid(p)
+            DecadeRules(p)
         phase.setXLink(mag)
         hline(mag, 0.0)
         hline(phase, -180.0)
@@ -69,10 +61,8 @@ class BodePlots:
         self.mag_curve = curve(mag, LOOP_PEN[loop])
         self.phase_curve = curve(phase, LOOP_PEN[loop])
         # Margin bars: GM from the curve up to 0 dB at the phase crossover; PM from -180 deg up to the curve.
-        self.gm_bar = pg.PlotDataItem(pen=pen(LOOP_COLOURS[loop], 2), skipFiniteCheck=True)
-        self.pm_bar = pg.PlotDataItem(pen=pen(LOOP_COLOURS[loop], 2), skipFiniteCheck=True)
-        mag.addItem(self.gm_bar, ignoreBounds=True)
-        phase.addItem(self.pm_bar, ignoreBounds=True)
+        self.gm_bar = curve(mag, pen(LOOP_COLOURS[loop], 2), ignore_bounds=True)
+        self.pm_bar = curve(phase, pen(LOOP_COLOURS[loop], 2), ignore_bounds=True)
         self.mag_text = pg.TextItem("", color="#555", anchor=(1, 0))
         self.mag_text.setParentItem(mag.vb)
         self.phase_text = pg.TextItem("", color="#555", anchor=(1, 1))
@@ -89,20 +79,23 @@ class BodePlots:
         db, deg = open_loop_db_deg(values, m.phase_margin_hz if math.isfinite(m.phase_margin_hz)
                                    else m.crossover_hz, f)
         self._f, self._db, self._deg = f, db, deg
-        self.mag_curve.setData(f, db)
-        self.phase_curve.setData(f, deg)
+        x = np.log10(f)
+        self.mag_curve.setData(x, db)
+        self.phase_curve.setData(x, deg)
         for line in (self.cross_mag, self.cross_phase):
             x = _log10(m.crossover_hz)
             line.setVisible(math.isfinite(x))
             if math.isfinite(x):
                 line.setValue(x)
         if math.isfinite(m.gain_margin_db) and math.isfinite(m.gain_margin_hz):
-            self.gm_bar.setData([m.gain_margin_hz, m.gain_margin_hz], [-m.gain_margin_db, 0.0])
+            x = math.log10(m.gain_margin_hz)
+            self.gm_bar.setData(np.array([x, x]), np.array([-m.gain_margin_db, 0.0]))
             self.gm_bar.show()
         else:
             self.gm_bar.hide()
         if math.isfinite(m.phase_margin_deg) and math.isfinite(m.phase_margin_hz):
-            self.pm_bar.setData([m.phase_margin_hz, m.phase_margin_hz], [-180.0, -180.0 + m.phase_margin_deg])
+            x = math.log10(m.phase_margin_hz)
+            self.pm_bar.setData(np.array([x, x]), np.array([-180.0, -180.0 + m.phase_margin_deg]))
             self.pm_bar.show()
         else:
             self.pm_bar.hide()

@@ -4,7 +4,7 @@ and the move simulation when the core has it. Items are created once and fed wit
 from __future__ import annotations
 
 import pyqtgraph as pg
-from PySide6.QtWidgets import QTabWidget, QWidget
+from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QTabWidget, QVBoxLayout, QWidget
 
 from app.flag_kinds import flag_kind
 from app.plots.bode_plot import BodePlots
@@ -23,6 +23,7 @@ def _layout_widget(name: str) -> pg.GraphicsLayoutWidget:
     w.setBackground(CARD)
     w.ci.setContentsMargins(4, 4, 4, 4)
     w.ci.setSpacing(6)
+    # Not DontSavePainterState: pyqtgraph items rely on Qt restoring the painter (blank plots otherwise).
     return w
 
 
@@ -54,7 +55,20 @@ class PlotsPanel(QTabWidget):
                 from app.plots.move_plot import MovePlots
                 self.move_view = _layout_widget("move_view")
                 self.move = MovePlots(self.move_view)
-                self.addTab(self.move_view, "Move")
+                page = QWidget()
+                column = QVBoxLayout(page)
+                column.setContentsMargins(0, 4, 0, 0)
+                row = QHBoxLayout()
+                row.addWidget(QLabel("  Scenario"))
+                self.scenario_box = QComboBox()
+                self.scenario_box.setObjectName("scenario_box")
+                self.scenario_box.currentTextChanged.connect(self._scenario_chosen)
+                row.addWidget(self.scenario_box, 1)
+                column.addLayout(row)
+                column.addWidget(self.move_view, 1)
+                self.move_page = page
+                self.addTab(page, "Move")
+                self._fill_scenarios()
                 session.simulation_ready.connect(self._simulation)
             except Exception:  # noqa: BLE001 - the move view is optional
                 self.move = None
@@ -68,6 +82,24 @@ class PlotsPanel(QTabWidget):
 
     def _preset_loaded(self) -> None:
         self.held = False
+        if self.move is not None:
+            self._fill_scenarios()
+
+    def _fill_scenarios(self) -> None:
+        self.scenario_box.blockSignals(True)
+        self.scenario_box.clear()
+        names = [s.get("name", "") for s in self.session.scenarios]
+        self.scenario_box.addItems(names)
+        self.scenario_box.setCurrentText(self.session.scenario_name)
+        self.scenario_box.blockSignals(False)
+
+    def _scenario_chosen(self, name: str) -> None:
+        if name:
+            self.session.set_scenario(name)
+
+    @property
+    def move_shown(self) -> bool:
+        return self.move is not None and self.currentWidget() is self.move_page
 
     def show_results(self, analysis) -> None:
         """Feed every plot the new result (setData only) and colour what the flags point at."""
@@ -107,11 +139,14 @@ class PlotsPanel(QTabWidget):
             self.move.fit()
 
     def hold_ranges(self) -> None:
-        """Keep axes still while a slider is dragged (no re-ticking on every frame)."""
+        """Keep axes still while a slider is dragged (no re-ticking on every frame); the move
+        simulation then only runs when its view is on screen."""
         self.held = True
+        self.session.set_simulate_enabled(self.move_shown)
 
     def release_ranges(self) -> None:
         self.held = False
+        self.session.set_simulate_enabled(True)
         self.fit()
 
     def highlight(self, flag) -> None:

@@ -39,7 +39,7 @@ class StepPlot:
         self._x, self._y = st.time_s, y
         self.curve.setData(st.time_s, y)
         settle = st.settling_time_s
-        words = f"overshoot {st.overshoot_pct:.3g} %"
+        words = "overshoot < 0.01 %" if st.overshoot_pct < 0.01 else f"overshoot {st.overshoot_pct:.3g} %"
         if math.isfinite(settle):
             words += f"\nsettles {settle * 1e3:.3g} ms" if settle < 1 else f"\nsettles {settle:.3g} s"
         self.text.setText(words)

@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pyqtgraph as pg
 
-from app.plots.style import GRID_PEN, LOOP_PEN, curve, styled_plot, vline
+from app.plots.style import LOOP_PEN, DecadeRules, curve, styled_plot
 
 
 class StiffnessPlot:
@@ -18,8 +18,8 @@ class StiffnessPlot:
         styled_plot(plot, "Dynamic stiffness at the load", "Frequency", "Hz", "|ΔF / Δx|", None)
         plot.setLogMode(x=True, y=True)
         plot.getAxis("bottom").enableAutoSIPrefix(False)
-        for d in range(-3, 6):
-            vline(plot, float(d), GRID_PEN)
+        plot.getAxis("left").enableAutoSIPrefix(False)
+        DecadeRules(plot)
         self.curve = curve(plot, LOOP_PEN["axis"])
         self._data = None
         self._unit = None
@@ -34,7 +34,7 @@ class StiffnessPlot:
         if not ok.all():
             f, k = f[ok], k[ok]
         self._data = (f, k)
-        self.curve.setData(f, k)
+        self.curve.setData(np.log10(f), np.log10(k))
 
     def fit(self) -> None:
         if self._data is None or len(self._data[0]) < 2:

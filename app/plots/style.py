@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
 
@@ -43,11 +44,27 @@ def styled_plot(plot: pg.PlotItem, title: str, x_label: str, x_units: str | None
     return plot
 
 
-def curve(plot: pg.PlotItem, colour_pen) -> pg.PlotDataItem:
-    """A data item created once and fed with ``setData`` afterwards."""
-    item = pg.PlotDataItem(pen=colour_pen, skipFiniteCheck=True, autoDownsample=False, clipToView=False)
-    plot.addItem(item)
+def curve(plot: pg.PlotItem, colour_pen, ignore_bounds: bool = False) -> pg.PlotCurveItem:
+    """A curve created once and fed with ``setData`` afterwards.
+
+    A bare PlotCurveItem, not a PlotDataItem: the latter's display pipeline (log
+    mapping, downsampling, clipping) costs more per update than the whole paint,
+    so log axes are fed log10 data by the caller.
+    """
+    item = pg.PlotCurveItem(pen=colour_pen, skipFiniteCheck=True)
+    plot.addItem(item, ignoreBounds=ignore_bounds)
     return item
+
+
+class DecadeRules:
+    """Light vertical rules at each decade of a log axis, drawn as one item (not one per line)."""
+
+    def __init__(self, plot: pg.PlotItem, decades=range(-3, 7), span: float = 1e6):
+        x = np.repeat(np.asarray(list(decades), float), 2)
+        y = np.tile([-span, span], len(x) // 2)
+        self.item = pg.PlotCurveItem(x, y, pen=GRID_PEN, connect="pairs", skipFiniteCheck=True)
+        self.item.setZValue(-20)
+        plot.addItem(self.item, ignoreBounds=True)
 
 
 def hline(plot: pg.PlotItem, y: float, p=REF_PEN) -> pg.InfiniteLine:

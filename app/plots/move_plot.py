@@ -1,0 +1,129 @@
+"""The simulated move: position and following error, current and voltage against their limits.
+
+Saturated intervals are shaded: one filled step curve per plot (limit where the
+command was clamped, zero elsewhere), so nothing is created per interval.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QColor
+
+from app.plots.style import LOOP_PEN, NO_BORDER, SEVERITY_BORDER, curve, hline, pen, styled_plot
+from app.theme import LOOP_COLOURS, MUTED, SEVERITY_COLOURS
+
+
+def _shade(plot: pg.PlotItem, colour: str) -> pg.PlotDataItem:
+    c = QColor(colour)
+    c.setAlpha(55)
+    item = pg.PlotCurveItem(pen=pg.mkPen(None), fillLevel=0.0, brush=c, skipFiniteCheck=True)
+    item.setZValue(-10)
+    plot.addItem(item, ignoreBounds=True)
+    return item
+
+
+def _thin(t: np.ndarray, *ys: np.ndarray, limit: int = 4000):
+    """Every k-th sample so a long run draws about ``limit`` points (peaks kept for the shading)."""
+    k = max(1, len(t) // limit)
+    return (t[::k],) + tuple(y[::k] for y in ys)
+
+
+class MovePlots:
+    """Three stacked plots in ``view`` (a GraphicsLayoutWidget), x-linked."""
+
+    def __init__(self, view: pg.GraphicsLayoutWidget):
+        self.position = view.addPlot(row=0, col=0)
+        self.current = view.addPlot(row=1, col=0)
+        self.voltage = view.addPlot(row=2, col=0)
+        styled_plot(self.position, "Move — following error", "Time", "s", "Following error", "m")
+        styled_plot(self.current, "Move — current (q axis)", "Time", "s", "Current", "A")
+        styled_plot(self.voltage, "Move — voltage demand", "Time", "s", "Voltage", "V")
+        for p in (self.current, self.voltage):
+            p.setXLink(self.position)
+        hline(self.position, 0.0)
+        self.error_curve = curve(self.position, LOOP_PEN["position"])
+        self.speed_curve = None
+        self.i_shade = _shade(self.current, SEVERITY_COLOURS["error"])
+        self.v_shade = _shade(self.voltage, SEVERITY_COLOURS["error"])
+        limit_pen = pen(SEVERITY_COLOURS["error"], 1, Qt.PenStyle.DashLine)
+        self.i_limits = (hline(self.current, 1.0, limit_pen), hline(self.current, -1.0, limit_pen))
+        cont_pen = pen(MUTED, 1, Qt.PenStyle.DotLine)
+        self.i_cont = (hline(self.current, 1.0, cont_pen), hline(self.current, -1.0, cont_pen))
+        self.v_limits = (hline(self.voltage, 1.0, limit_pen), hline(self.voltage, -1.0, limit_pen))
+        self.i_cmd = curve(self.current, pen(LOOP_COLOURS["speed"], 1, Qt.PenStyle.DashLine))
+        self.i_act = curve(self.current, LOOP_PEN["current"])
+        self.v_demand = curve(self.voltage, pen(MUTED, 1, Qt.PenStyle.DashLine))
+        self.v_cmd = curve(self.voltage, LOOP_PEN["current"])
+        self.message = pg.TextItem("", color=SEVERITY_COLOURS["error"], anchor=(0, 0))
+        self.message.setParentItem(self.position.vb)
+        self.message.setPos(6, 4)
+        self.figures = pg.TextItem("", color="#555", anchor=(1, 0))
+        self.figures.setParentItem(self.current.vb)
+        self.current.vb.sigResized.connect(self._place)
+        self._ranges = None
+        self._unit = None
+
+    def _place(self, *_):
+        self.figures.setPos(self.current.vb.width() - 4, 2)
+
+    def update(self, result, axis) -> None:
+        t = result.time_s
+        if len(t) < 2:
+            return
+        unit = result.load_unit
+        if unit != self._unit:
+            self._unit = unit
+            self.position.setLabel("left", "Following error", units=unit)
+        ref_load = result.position_reference_rad / axis.load.ratio
+        err = ref_load - result.load_position
+        sat_i = result.saturated_current.astype(float)
+        sat_v = result.saturated_voltage.astype(float)
+        tt, err, i_cmd, i_act, v_cmd, v_dem, sat_i, sat_v = _thin(
+            t, err, result.current_command_a, result.current_a, result.voltage_command_v,
+            result.voltage_demand_v, sat_i, sat_v)
+        m = result.metrics
+        i_lim, v_lim = m.current_limit_a, result.voltage_limit_v
+        self.error_curve.setData(tt, err)
+        self.i_cmd.setData(tt, i_cmd)
+        self.i_act.setData(tt, i_act)
+        self.v_cmd.setData(tt, v_cmd)
+        self.v_demand.setData(tt, v_dem)
+        self.i_shade.setData(tt, np.where(i_cmd >= 0, 1.0, -1.0) * i_lim * sat_i)
+        self.v_shade.setData(tt, np.where(v_dem >= 0, 1.0, -1.0) * v_lim * sat_v)
+        for line, y in zip(self.i_limits, (i_lim, -i_lim)):
+            line.setValue(y)
+        cont = m.continuous_current_a
+        for line, y in zip(self.i_cont, (cont, -cont)):
+            line.setVisible(math.isfinite(cont))
+            if math.isfinite(cont):
+                line.setValue(y)
+        for line, y in zip(self.v_limits, (v_lim, -v_lim)):
+            line.setValue(y)
+        diverged = math.isfinite(result.diverged_at_s)
+        self.message.setText(f"diverged at t = {result.diverged_at_s * 1e3:.3g} ms" if diverged else "")
+        self.figures.setText(f"peak {m.peak_current_a:.3g} A of {i_lim:.3g} A   "
+                             f"I-sat {m.time_current_saturated_s * 1e3:.3g} ms   "
+                             f"V-sat {m.time_voltage_saturated_s * 1e3:.3g} ms")
+        self.current.vb.setBorder(SEVERITY_BORDER["error"] if m.time_current_saturated_s > 0 else NO_BORDER)
+        self.voltage.vb.setBorder(SEVERITY_BORDER["error"] if m.time_voltage_saturated_s > 0 else NO_BORDER)
+        self._ranges = (float(tt[-1]), err, max(i_lim, float(np.max(np.abs(i_act)))),
+                        max(v_lim, float(np.max(np.abs(v_dem)))))
+
+    def show_error(self, text: str) -> None:
+        self.message.setText(text)
+
+    def fit(self) -> None:
+        if self._ranges is None:
+            return
+        t1, err, i_max, v_max = self._ranges
+        e = float(np.max(np.abs(err))) or 1e-9
+        self.position.vb.setRange(xRange=(0.0, t1), yRange=(-1.1 * e, 1.1 * e), padding=0)
+        self.current.vb.setRange(yRange=(-1.15 * i_max, 1.15 * i_max), padding=0)
+        self.voltage.vb.setRange(yRange=(-1.15 * v_max, 1.15 * v_max), padding=0)
+
+
+
