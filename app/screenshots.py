@@ -31,7 +31,9 @@ def _settle(app: QApplication, window) -> None:
         app.processEvents()
 
 
-def _shot(app, window, out: Path, name: str) -> Path:
+def _shot(app, window, out: Path, name: str, keep_status: bool = False) -> Path:
+    if not keep_status:
+        window.statusBar().clearMessage()
     _settle(app, window)
     path = out / name
     window.grab().save(str(path))
@@ -74,7 +76,7 @@ def render(out: Path) -> list[Path]:
     edit = window.axis_panel.field("motor", "inductance_h")
     edit.setText("-5 mH")
     edit.editingFinished.emit()
-    shots.append(_shot(app, window, out, "03_axis_model_and_disturbance.png"))
+    shots.append(_shot(app, window, out, "03_axis_model_and_disturbance.png", keep_status=True))
     edit.set_value(session.axis.motor.inductance_h)
 
     if window.plots.move is not None:
