@@ -86,19 +86,23 @@ def analyse(axis: Axis, gains: GainSet, targets: Targets | None = None,
     Analysis
     """
     targets = targets or Targets()
+    # An unstable or extreme loop can overflow on its way to a trace; it is reported
+    # through its flags, so numpy's warnings would only be noise.
+    with np.errstate(all="ignore"):
+        return _analyse(axis, gains, targets, constants)
+
+
+def _analyse(axis: Axis, gains: GainSet, targets: Targets, constants: ConstantsCheck | None) -> Analysis:
     margins, freq = loop_margins(axis, gains)
     integral = {"current": gains.current.pi.integral_time_s, "speed": gains.speed.pi.integral_time_s,
                 "position": gains.position.pi.integral_time_s}
     steps = {}
     fallback = 10.0 * axis.mechanical_time_constant_s
     for loop in LOOPS:
-        horizon = response_horizon_s(margins[loop].crossover_hz, integral[loop], fallback)
-        growth = 0.0 if margins[loop].stable else 2 * math.pi * max(margins[loop].crossover_hz or 0.0, 1.0)
+        horizon, growth = _horizon(margins[loop], integral[loop], fallback)
         steps[loop] = step_response(axis, gains, loop, horizon, growth)
     load_torque = targets.load_step_nm if math.isfinite(targets.load_step_nm) else default_load_step_nm(axis)
-    pos = margins["position"]
-    horizon = response_horizon_s(pos.crossover_hz, integral["speed"], fallback)
-    growth = 0.0 if pos.stable else 2 * math.pi * max(pos.crossover_hz or 0.0, 1.0)
+    horizon, growth = _horizon(margins["position"], integral["speed"], fallback)
     load = load_step_response(axis, gains, load_torque, horizon, growth)
     omega = freq.omega_rad_s
     stiffness = 1.0 / np.abs(freq.dynamic_compliance)
@@ -106,6 +110,21 @@ def analyse(axis: Axis, gains: GainSet, targets: Targets | None = None,
     flags += step_flags({k: v for k, v in steps.items() if margins[k].stable}, targets)
     flags += quantisation_flags(axis, gains, targets)
     return Analysis(margins, freq, steps, load, omega / (2 * math.pi), stiffness, tuple(flags))
+
+
+def _horizon(m: LoopMargins, integral_time_s: float, fallback_s: float) -> tuple[float, float]:
+    """Trace length, s, and the growth rate to invert above, 1/s.
+
+    An unstable loop is shown until it has grown by about e^10 — enough to see how it
+    diverges — with the contour shifted right of its fastest growth (estimated from its
+    crossover).
+    """
+    horizon = response_horizon_s(m.crossover_hz, integral_time_s, fallback_s)
+    if m.stable:
+        return horizon, 0.0
+    fc = m.crossover_hz if math.isfinite(m.crossover_hz) else 1.0
+    growth = 2 * math.pi * max(fc, 1.0)
+    return min(horizon, 10.0 / growth), growth
 
 
 def analysis_summary(result: Analysis) -> dict:

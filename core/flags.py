@@ -147,7 +147,7 @@ def margin_flags(axis: Axis, margins: dict[str, LoopMargins], targets: Targets,
             flags.append(Flag(loop, "warning", f"Delay margin {m.delay_margin_s * 1e6:.0f} us is below the "
                                                f"{targets.delay_margin_min_s * 1e6:.0f} us target."))
         bw_min = getattr(targets, f"{loop}_bandwidth_min_hz")
-        if not m.bandwidth_hz >= bw_min:
+        if bw_min > 0 and not m.bandwidth_hz >= bw_min:
             flags.append(Flag(loop, "warning", f"Closed-loop bandwidth {_hz(m.bandwidth_hz)} is below the "
                                                f"{_hz(bw_min)} target."))
         if m.sensitivity_peak > targets.sensitivity_peak_max:

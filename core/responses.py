@@ -109,15 +109,51 @@ def inverse_laplace(transfer: Callable[[FrequencyAlgebra], np.ndarray], horizon_
     -------
     (time_s, value) : tuple of ndarray, each ``samples // 2`` long
     """
-    period = 2.0 * horizon_s
-    sigma = _SIGMA_T / period + max(growth_per_s, 0.0)
-    k = np.arange(samples // 2 + 1)
-    alg = FrequencyAlgebra(2.0 * math.pi * k / period, sigma)
-    spectrum = transfer(alg) / alg.s ** integrations
-    series = np.fft.irfft(spectrum * (samples / period), n=samples)
-    t = np.arange(samples) * (period / samples)
-    half = samples // 2
-    return t[:half], series[:half] * np.exp(sigma * t[:half])
+    contour = _Contour(horizon_s, samples, growth_per_s)
+    values = transfer(contour.algebra)
+    return contour.time_s, contour.invert(values, integrations)
+
+
+class _Contour:
+    """The shifted Fourier contour of one inversion, and the inversion itself.
+
+    The periodic extension of ``f(t) exp(-sigma t)`` is continuous at the wrap only
+    if ``f(0+) = 0`` and has a continuous slope only if ``f'(0+) = 0``; otherwise the
+    Fourier coefficients fall off like 1/k or 1/k^2 and the first samples ring. So
+    the value and slope at 0+ are read from the transfer far out on the real axis
+    (initial-value theorem; delayed paths vanish there), carried by
+    ``q(t) = (d + c t) exp(-a t)`` whose transform is known, and only ``f - q`` is
+    inverted numerically (derived).
+    """
+
+    def __init__(self, horizon_s: float, samples: int, growth_per_s: float):
+        self.samples = samples
+        self.period = 2.0 * horizon_s
+        self.sigma = _SIGMA_T / self.period + max(growth_per_s, 0.0)
+        k = np.arange(samples // 2 + 1)
+        self.s_far = 50.0 * math.pi * samples / self.period + 10.0 * self.sigma
+        grid = self.sigma + 2j * math.pi * k / self.period
+        self.algebra = FrequencyAlgebra(np.zeros(1))
+        self.algebra.s = np.concatenate([grid, [self.s_far, 2.0 * self.s_far]])
+        self.time_s = (np.arange(samples) * (self.period / samples))[:samples // 2]
+        self.decay = 20.0 / self.period + self.sigma
+
+    def invert(self, values: np.ndarray, integrations: int) -> np.ndarray:
+        """``values`` (on :attr:`algebra`) divided by s**integrations, back to time."""
+        n = self.samples // 2 + 1
+        s = self.algebra.s[:n]
+        h1, h2 = values[n].real, values[n + 1].real
+        h_inf = 2.0 * h2 - h1                          # H(inf), Richardson on two far points
+        slope = 2.0 * self.s_far * (h1 - h2)           # lim s (H(s) - H(inf))
+        f0, df0 = (h_inf, slope) if integrations == 1 else (0.0, h_inf if integrations == 2 else 0.0)
+        if not (math.isfinite(f0) and math.isfinite(df0)):
+            f0, df0 = 0.0, 0.0
+        a = self.decay
+        c = df0 + a * f0
+        spectrum = values[:n] / s ** integrations - (f0 / (s + a) + c / (s + a) ** 2)
+        series = np.fft.irfft(spectrum * (self.samples / self.period), n=self.samples)[:n - 1]
+        t = self.time_s
+        return series * np.exp(self.sigma * t) + (f0 + c * t) * np.exp(-a * t)
 
 
 def step_figures(t: np.ndarray, y: np.ndarray) -> tuple[float, float, float, float]:
@@ -175,17 +211,12 @@ def load_step_response(axis: Axis, gains: GainSet, load_torque_nm: float, horizo
     def transfer(alg):
         return CascadeModel(axis, gains, alg).position_disturbance_speed * load_torque_nm
 
-    period = 2.0 * horizon_s
-    sigma = _SIGMA_T / period + max(growth_per_s, 0.0)
-    k = np.arange(SAMPLES // 2 + 1)
-    alg = FrequencyAlgebra(2.0 * math.pi * k / period, sigma)
-    h = transfer(alg)
-    half = SAMPLES // 2
-    t = np.arange(SAMPLES) * (period / SAMPLES)
-    scale = np.exp(sigma * t[:half])
-    speed = np.fft.irfft(h / alg.s * (SAMPLES / period), n=SAMPLES)[:half] * scale
-    position = np.fft.irfft(h / alg.s ** 2 * (SAMPLES / period), n=SAMPLES)[:half] * scale
-    t = t[:half]
+    contour = _Contour(horizon_s, SAMPLES, growth_per_s)
+    h = transfer(contour.algebra)
+    speed = contour.invert(h, 1)
+    position = contour.invert(h, 2)
+    t = contour.time_s
+    half = len(t)
     j = int(np.argmax(np.abs(speed)))
     dip = float(speed[j])
     pj = int(np.argmax(np.abs(position)))

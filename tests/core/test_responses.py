@@ -170,13 +170,9 @@ def test_step_responses_equal_python_control(loop, horizon_s):
     ref = axes.reference_loops(axis, g, None, UNIT)[f"{loop}_closed"]
     y = np.squeeze(control.step_response(ref, T=r.time_s * UNIT).outputs)
     scale = abs(y[-1])
-    assert_allclose(r.value[1:], y[1:], atol=1e-3 * scale)
+    assert_allclose(r.value, y, atol=1e-3 * scale)
     assert_allclose(r.final_value, np.mean(y[-len(y) // 50:]), atol=1e-3 * scale)
 
-
-_KINK = ("core bug: a trace whose exact response starts with a nonzero slope (relative degree 1) "
-         "does not start at 0: the truncated Fourier series errs at the kink of its periodic "
-         "extension by ~slope*period/(pi^2*samples/2)")
 
 
 def _load_step_trace():
@@ -195,15 +191,16 @@ def _step_trace(loop, horizon_s):
 @pytest.mark.parametrize("case", [
     pytest.param(("speed", 30e-3), id="speed-step"),
     pytest.param(("position", 0.2), id="position-step"),
-    pytest.param(("current", 3e-3), id="current-step", marks=pytest.mark.xfail(strict=True, reason=_KINK)),
-    pytest.param("load", id="load-step", marks=pytest.mark.xfail(strict=True, reason=_KINK)),
+    pytest.param(("current", 3e-3), id="current-step"),
+    pytest.param("load", id="load-step"),
 ])
 def test_trace_starts_at_zero(case):
     """Every strictly proper response is exactly 0 at t = 0 (derived: initial-value theorem,
     s * F(s)/s -> 0); held to 1e-3 of the trace's scale like the rest of the trace.
 
-    Measured: current step 1.9e-3 of its final value (3 ms horizon), load step 6.4e-3 of
-    its dip (50 ms horizon); both errors grow with the horizon at fixed sample count.
+    Before the initial value and slope were carried analytically (core.responses._Contour)
+    the current step started at 1.9e-3 of its final value and the load step at 6.4e-3 of
+    its dip; this is the regression test for that.
     """
     y, scale = _load_step_trace() if case == "load" else _step_trace(*case)
     assert abs(y[0]) <= 1e-3 * scale
@@ -247,7 +244,7 @@ def test_load_step_response_equals_python_control():
     speed = np.squeeze(control.step_response(ref, T=r.time_s * UNIT).outputs)
     position = np.squeeze(control.step_response(ref / (UNIT * control.tf("s")), T=r.time_s * UNIT).outputs)
     # From the second sample on; t = 0 is held in test_trace_starts_at_zero.
-    assert_allclose(r.speed_rad_s[1:], speed[1:], atol=1e-3 * np.max(np.abs(speed)))
+    assert_allclose(r.speed_rad_s, speed, atol=1e-3 * np.max(np.abs(speed)))
     assert_allclose(r.position_rad, position, atol=1e-3 * np.max(np.abs(position)))
     assert_allclose(r.speed_dip_rad_s, speed[np.argmax(np.abs(speed))], rtol=1e-3)
     assert r.speed_dip_rad_s < 0    # a positive load torque slows the motor
@@ -260,8 +257,8 @@ def test_ramp_integration_is_the_integral_of_the_step():
     t2, ramp = inverse_laplace(lambda alg: alg.tf([1.0], [1e-3, 1.0]), 0.02, integrations=2)
     exact = t2 - 1e-3 * (1 - np.exp(-t2 / 1e-3))
     assert_allclose(ramp, exact, atol=1e-3 * exact[-1])
-    # From the second sample on (the first-order lag starts with slope 1/tau: see the kink note).
-    assert_allclose(y[1:], 1 - np.exp(-t[1:] / 1e-3), atol=1e-3)
+    # The whole trace, t = 0 included: the lag starts with slope 1/tau, carried analytically.
+    assert_allclose(y, 1 - np.exp(-t / 1e-3), atol=1e-4)
 
 
 def test_step_figures_of_a_known_trace():
