@@ -36,13 +36,14 @@ from core.errors import InputError
 from core.gains import PI, CurrentGains, GainSet, Notch, PositionGains, SpeedGains
 from core.load import Load
 from core.motor import ConstantsCheck, current_to_model, motor_from_datasheet
+from core.tolerances import tolerances_from_dict
 from core.units import parse_quantity
 
 FORMAT_VERSION = 1
 """The preset format this module reads and writes."""
 
 TOP_KEYS = ("format_version", "active_gain_set", "axis", "motor", "load", "drive",
-            "targets", "tuning", "gain_sets", "scenarios")
+            "targets", "tuning", "tolerances", "gain_sets", "scenarios")
 AXIS_KEYS = ("name", "description")
 MOTOR_KEYS = ("kind", "pole_pairs", "resistance", "inductance", "winding_convention", "kt",
               "kt_convention", "ke", "ke_convention", "inertia", "viscous_friction",
@@ -123,6 +124,9 @@ class Preset:
     scenarios : tuple of dict
         Time-simulation scenarios as written in the file (values are unit strings,
         parsed by the simulation).
+    tolerances : dict
+        ``[tolerances]`` as written (checked on reading; :func:`core.tolerances.tolerances_from_dict`
+        turns it into factor ranges).
     source_path : Path or None
         Where the preset was read from.
     raw : dict
@@ -137,6 +141,7 @@ class Preset:
     targets: dict[str, float] = field(default_factory=dict)
     tuning: dict[str, float | str] = field(default_factory=dict)
     scenarios: tuple[dict[str, Any], ...] = ()
+    tolerances: dict[str, Any] = field(default_factory=dict)
     source_path: Path | None = field(default=None, compare=False)
     raw: dict[str, Any] = field(default_factory=dict, compare=False, repr=False)
 
@@ -415,8 +420,11 @@ def _preset_from_document(doc: dict[str, Any], source: str) -> Preset:
     drive = _read_drive(top.table("drive", DRIVE_KEYS), motor.kind)
     gain_sets = tuple(_read_gain_set(g, i) for i, g in enumerate(top.tables("gain_sets", GAIN_SET_KEYS)))
     default_active = gain_sets[0].name if gain_sets else ""
+    axis = Axis(motor=motor, load=load, drive=drive, name=axis_t.text("name", "axis" if source.startswith("<") else Path(source).stem))
+    tolerances = top.data.get("tolerances", {})
+    tolerances_from_dict(tolerances, axis)      # checked here; kept as written
     return Preset(
-        axis=Axis(motor=motor, load=load, drive=drive, name=axis_t.text("name", "axis" if source.startswith("<") else Path(source).stem)),
+        axis=axis,
         constants_check=check,
         gain_sets=gain_sets,
         active=top.text("active_gain_set", default_active),
@@ -424,6 +432,7 @@ def _preset_from_document(doc: dict[str, Any], source: str) -> Preset:
         targets=_read_targets(top.table("targets", tuple(TARGET_UNITS), required=False)),
         tuning=_read_tuning(top.table("tuning", tuple(TUNING_CHOICES) + tuple(TUNING_UNITS), required=False)),
         scenarios=_read_scenarios(top),
+        tolerances=dict(tolerances),
         raw=doc,
     )
 
@@ -603,6 +612,8 @@ def dumps_preset(preset: Preset) -> str:
     doc["drive"] = _drive_table(preset.axis.drive, preset.axis.motor.kind)
     doc["targets"] = {k: _q(v, TARGET_UNITS[k]) for k, v in preset.targets.items()}
     doc["tuning"] = {k: (v if k in TUNING_CHOICES else _q(v, TUNING_UNITS[k])) for k, v in preset.tuning.items()}
+    if preset.tolerances:
+        doc["tolerances"] = dict(preset.tolerances)
     doc["gain_sets"] = [_gain_set_table(g) for g in preset.gain_sets]
     doc["scenarios"] = [dict(s) for s in preset.scenarios]
     header = ("# Loopwright preset, written by the program: SI units, motor constants in the\n"
