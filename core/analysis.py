@@ -16,7 +16,7 @@ from core.flags import Flag, Targets, margin_flags, quantisation_flags, step_fla
 from core.gains import GainSet
 from core.margins import LOOPS, FrequencyData, LoopMargins, loop_margins
 from core.motor import ConstantsCheck
-from core.responses import (LoadStepResponse, StepResponse, load_step_response, response_horizon_s,
+from core.responses import (LoadStepResponse, StepResponse, position_and_load_step, response_horizon_s,
                             step_response)
 
 
@@ -98,12 +98,14 @@ def _analyse(axis: Axis, gains: GainSet, targets: Targets, constants: ConstantsC
                 "position": gains.position.pi.integral_time_s}
     steps = {}
     fallback = 10.0 * axis.mechanical_time_constant_s
-    for loop in LOOPS:
+    for loop in ("current", "speed"):
         horizon, growth = _horizon(margins[loop], integral[loop], fallback)
         steps[loop] = step_response(axis, gains, loop, horizon, growth)
     load_torque = targets.load_step_nm if math.isfinite(targets.load_step_nm) else default_load_step_nm(axis)
+    # The position step and the load step share a horizon long enough for the load
+    # step's recovery (set by the speed integral), and so one model evaluation.
     horizon, growth = _horizon(margins["position"], integral["speed"], fallback)
-    load = load_step_response(axis, gains, load_torque, horizon, growth)
+    steps["position"], load = position_and_load_step(axis, gains, load_torque, horizon, growth)
     omega = freq.omega_rad_s
     stiffness = 1.0 / np.abs(freq.dynamic_compliance)
     flags = margin_flags(axis, margins, targets, constants)

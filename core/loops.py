@@ -25,12 +25,29 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from functools import cached_property, lru_cache
+from functools import lru_cache
 
 import numpy as np
 
 from core.axis import Axis
 from core.gains import GainSet
+
+
+class cached_property:
+    """A lock-free ``functools.cached_property``: computed on first access, then a plain
+    instance attribute (Python 3.11's version takes a lock on every first access, which
+    costs more than the arithmetic on a recompute's small arrays)."""
+
+    def __init__(self, func):
+        self.func = func
+        self.name = func.__name__
+        self.__doc__ = func.__doc__
+
+    def __get__(self, instance, owner=None):
+        if instance is None:
+            return self
+        value = instance.__dict__[self.name] = self.func(instance)
+        return value
 
 
 class FrequencyAlgebra:

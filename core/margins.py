@@ -27,7 +27,7 @@ from core.gains import GainSet
 from core.loops import CascadeModel, FrequencyAlgebra
 
 LOOPS = ("current", "speed", "position")
-POINTS_PER_DECADE = 100
+POINTS_PER_DECADE = 80
 _REFINE_STEPS = 3
 _REFINE_MAX_STEPS = 30
 _DIP_ROUNDS = 3
@@ -151,59 +151,125 @@ def _residual(kind: str, ol, cl, ref):
     return np.log(np.abs(cl)) - ref          # bandwidth: |T| against |T0|/sqrt(2)
 
 
-def _refine(ev: _Evaluator, brackets: list) -> np.ndarray:
-    """Illinois iterations on log(w) for every bracket at once.
+class _Crossings:
+    """Illinois (modified regula falsi) iterations on log(w) for many brackets at once.
 
-    ``brackets``: (loop index, kind, w_lo, w_hi, r_lo, r_hi, ref) with residuals of
-    opposite sign at the ends. Returns the refined w, rad/s.
+    A bracket is (loop index, kind, w_lo, w_hi, r_lo, r_hi, ref) with residuals of
+    opposite sign at its ends; kinds are "gain" (log|L|), "phase" (arg(-L)) and "bw"
+    (log|T| - ref). Every bracket takes ``_REFINE_STEPS`` steps, then more until its
+    residual is below 1e-8 (sharp resonances), at most ``_REFINE_MAX_STEPS``.
     """
-    if not brackets:
-        return np.zeros(0), [np.zeros(0, complex)] * 3
-    loop = np.array([b[0] for b in brackets])
-    kinds = [b[1] for b in brackets]
-    a = np.log(np.array([b[2] for b in brackets]))
-    b = np.log(np.array([b[3] for b in brackets]))
-    fa = np.array([br[4] for br in brackets])
-    fb = np.array([br[5] for br in brackets])
-    ref = np.array([br[6] for br in brackets])
-    kinds = np.array(kinds)
-    x = b.copy()
-    fx = fb.copy()
-    values = [np.zeros(len(brackets), complex) for _ in range(3)]
-    active = np.arange(len(brackets))
-    for step in range(_REFINE_MAX_STEPS):
-        xa = np.where(fb[active] != fa[active],
-                      b[active] - fb[active] * (b[active] - a[active]) / (fb[active] - fa[active]),
-                      0.5 * (a[active] + b[active]))
-        ols, cls = ev.at_omega(np.exp(xa))
-        fxa = np.empty_like(xa)
-        for li in range(3):
-            for kind in ("gain", "phase", "bw"):
-                sel = np.nonzero((loop[active] == li) & (kinds[active] == kind))[0]
-                if len(sel):
-                    fxa[sel] = _residual(kind, ols[li][sel], cls[li][sel], ref[active][sel])
-        for li in range(3):
-            values[li][active] = ols[li]
-        x[active], fx[active] = xa, fxa
-        same = np.sign(fxa) == np.sign(fb[active])
+
+    def __init__(self):
+        self.loop = np.zeros(0, int)
+        self.kind = np.zeros(0, "<U5")
+        self.a = self.b = self.fa = self.fb = self.ref = self.x = np.zeros(0)
+        self.steps = np.zeros(0, int)
+        self.values = np.zeros((3, 0), complex)
+        self.active = np.zeros(0, int)
+
+    def add(self, brackets: list) -> None:
+        """Start refining more brackets."""
+        if not brackets:
+            return
+        n0 = len(self.loop)
+        col = list(zip(*brackets))
+        self.loop = np.concatenate([self.loop, np.array(col[0], int)])
+        self.kind = np.concatenate([self.kind, np.array(col[1])])
+        self.a = np.concatenate([self.a, np.log(np.array(col[2], float))])
+        self.b = np.concatenate([self.b, np.log(np.array(col[3], float))])
+        self.fa = np.concatenate([self.fa, np.array(col[4], float)])
+        self.fb = np.concatenate([self.fb, np.array(col[5], float)])
+        self.ref = np.concatenate([self.ref, np.array(col[6], float)])
+        self.x = np.concatenate([self.x, self.b[n0:]])
+        self.steps = np.concatenate([self.steps, np.zeros(len(brackets), int)])
+        self.values = np.concatenate([self.values, np.zeros((3, len(brackets)), complex)], axis=1)
+        self.active = np.concatenate([self.active, np.arange(n0, len(self.loop))])
+
+    def proposal(self) -> np.ndarray:
+        """The next point of every active bracket, log(rad/s)."""
+        i = self.active
+        a, b, fa, fb = self.a[i], self.b[i], self.fa[i], self.fb[i]
+        return np.where(fb != fa, b - fb * (b - a) / (fb - fa), 0.5 * (a + b))
+
+    def update(self, xa: np.ndarray, ol: np.ndarray, cl: np.ndarray, all_ol: np.ndarray) -> None:
+        """Take the loops' values at the proposed points (``ol``/``cl`` of each bracket's own
+        loop; ``all_ol`` of all three loops, shape (3, n))."""
+        i = self.active
+        kind = self.kind[i]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            fx = np.where(kind == "gain", np.log(np.abs(ol)),
+                          np.where(kind == "phase", np.angle(-ol), np.log(np.abs(cl)) - self.ref[i]))
+        self.values[:, i] = all_ol
+        self.x[i] = xa
+        same = np.sign(fx) == np.sign(self.fb[i])
         # Illinois: halve the retained end's residual when the same end is kept twice.
-        fa[active] = np.where(same, fa[active] * 0.5, fb[active])
-        a[active] = np.where(same, a[active], b[active])
-        b[active], fb[active] = xa, fxa
-        if step + 1 >= _REFINE_STEPS:
-            # Past the usual few steps, go on only with crossings not yet converged
-            # (sharp resonances): |residual| is a log-magnitude or an angle in rad.
-            active = active[np.abs(fxa) > 1e-9]
-            if len(active) == 0:
-                break
-    return np.exp(x), values
+        self.fa[i] = np.where(same, self.fa[i] * 0.5, self.fb[i])
+        self.a[i] = np.where(same, self.a[i], self.b[i])
+        self.b[i], self.fb[i] = xa, fx
+        self.steps[i] += 1
+        keep = (self.steps[i] < _REFINE_STEPS) | (
+            (np.abs(fx) > 1e-8) & (np.abs(self.b[i] - self.a[i]) > 1e-12) & (self.steps[i] < _REFINE_MAX_STEPS))
+        self.active = i[keep]
 
 
-def _dip_brackets(omega: np.ndarray, distance: np.ndarray, count: int = 3):
-    """Triples (log w, log |1+L|) round the ``count`` deepest local minima of ``distance``."""
+class _Dips:
+    """Local minima of a distance on the grid, narrowed by successive parabolic steps in log(w).
+
+    Rows are triples (log w, log distance) with the lowest in the middle; ``owner`` is
+    the loop, ``is_peak`` marks rows whose distance is 1/|L| (peaks of |L|) rather than
+    |1 + L| (sensitivity peaks).
+    """
+
+    def __init__(self, omega: np.ndarray, ols: list):
+        triples = [_dip_brackets(omega, np.abs(1.0 + ol)) for ol in ols]
+        triples += [_dip_brackets(omega, 1.0 / np.abs(ol), only_above=1.0) for ol in ols]
+        self.x = np.concatenate([t[0] for t in triples])
+        self.y = np.concatenate([t[1] for t in triples])
+        self.owner = np.concatenate([np.full(len(t[0]), k % 3) for k, t in enumerate(triples)])
+        self.is_peak = np.concatenate([np.full(len(t[0]), k >= 3) for k, t in enumerate(triples)])
+        self.rounds = 0
+
+    def proposal(self) -> np.ndarray:
+        """Parabola vertices of every row, log(rad/s) (empty once the rounds are done)."""
+        return _parabola_vertex(self.x, self.y) if self.rounds < _DIP_ROUNDS else np.zeros(0)
+
+    def update(self, v: np.ndarray, lv: np.ndarray) -> None:
+        """Take L (each row's own loop) at the vertices."""
+        with np.errstate(divide="ignore"):
+            yv = np.where(self.is_peak, -np.log(np.abs(lv)), np.log(np.abs(1.0 + lv)))
+        self.x, self.y = _narrow(self.x, self.y, v, yv)
+        self.rounds += 1
+
+    def hidden_crossings(self) -> list:
+        """Gain-crossover brackets on both sides of each |L| peak found above 0 dB."""
+        out = []
+        for r in np.nonzero(self.is_peak & (self.y[:, 1] < 0.0))[0]:
+            for lo, hi in ((0, 1), (1, 2)):
+                r_lo, r_hi = -self.y[r, lo], -self.y[r, hi]
+                if np.signbit(r_lo) != np.signbit(r_hi):
+                    out.append((int(self.owner[r]), "gain", math.exp(self.x[r, lo]), math.exp(self.x[r, hi]),
+                                r_lo, r_hi, 0.0))
+        return out
+
+    def sensitivity_rows(self, loop: int) -> tuple[np.ndarray, np.ndarray]:
+        """(w, |1 + L|) at the narrowed sensitivity dips of ``loop``."""
+        mine = (self.owner == loop) & ~self.is_peak
+        return np.exp(self.x[mine, 1]), np.exp(self.y[mine, 1])
+
+
+def _dip_brackets(omega: np.ndarray, distance: np.ndarray, count: int = 3, only_above: float = 0.0):
+    """Triples (log w, log distance) round the ``count`` deepest local minima of ``distance``.
+
+    With ``only_above``, only minima whose grid value exceeds it are taken (possibly none).
+    """
     d = distance
     inner = np.nonzero((d[1:-1] <= d[:-2]) & (d[1:-1] <= d[2:]))[0] + 1
-    if len(inner) == 0:
+    if only_above:
+        inner = inner[d[inner] > only_above]
+        if len(inner) == 0:
+            return np.zeros((0, 3)), np.zeros((0, 3))
+    elif len(inner) == 0:
         inner = np.array([min(max(int(np.argmin(d)), 1), len(d) - 2)])
     inner = inner[np.argsort(d[inner])[:count]]
     idx = inner[:, None] + np.array([-1, 0, 1])[None, :]
@@ -225,14 +291,17 @@ def _parabola_vertex(x: np.ndarray, y: np.ndarray) -> np.ndarray:
 
 
 def _narrow(x: np.ndarray, y: np.ndarray, v: np.ndarray, yv: np.ndarray):
-    """Replace one end of each bracket by the new point, keeping the minimum in the middle."""
-    x, y = x.copy(), y.copy()
-    for r in range(len(v)):
-        pts = sorted(zip(np.append(x[r], v[r]), np.append(y[r], yv[r])))
-        k = min(max(int(np.argmin([p[1] for p in pts])), 1), 2)
-        x[r] = [p[0] for p in pts[k - 1:k + 2]]
-        y[r] = [p[1] for p in pts[k - 1:k + 2]]
-    return x, y
+    """Replace one end of each bracket by the new point, keeping the lowest in the middle."""
+    x0, x1, x2 = x.T
+    y0, y1, y2 = y.T
+    left, better = v < x1, yv < y1
+    nx = np.column_stack([np.where(left, np.where(better, x0, v), np.where(better, x1, x0)),
+                          np.where(better, v, x1),
+                          np.where(left, np.where(better, x1, x2), np.where(better, x2, v))])
+    ny = np.column_stack([np.where(left, np.where(better, y0, yv), np.where(better, y1, y0)),
+                          np.where(better, yv, y1),
+                          np.where(left, np.where(better, y1, y2), np.where(better, y2, yv))])
+    return nx, ny
 
 
 def _sign_changes(r: np.ndarray) -> np.ndarray:
@@ -299,7 +368,7 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         omega = frequency_grid(axis, gains)
     ev = _Evaluator(axis, gains)
     # One evaluation: the grid plus a tail to 100x its top for the Nyquist count.
-    tail = omega[-1] * np.logspace(0, 2, 2 * POINTS_PER_DECADE + 1)[1:]
+    tail = omega[-1] * np.logspace(0, 2, 61)[1:]
     grid_model = CascadeModel(axis, gains, FrequencyAlgebra(np.concatenate([omega, tail])))
     ols_all, cls_all = _loop_arrays(grid_model)
     n = len(omega)
@@ -316,7 +385,9 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         im = ol.imag
         for k in np.nonzero((np.signbit(im[:-1]) != np.signbit(im[1:])) & (ol.real[:-1] + ol.real[1:] < 0))[0]:
             r = _residual("phase", ol[k:k + 2], None, 0.0)
-            if np.signbit(r[0]) != np.signbit(r[1]):
+            # A true crossing of the negative real axis has arg(-L) near 0 on both sides;
+            # a jump through +-pi is L passing the positive real axis instead.
+            if np.signbit(r[0]) != np.signbit(r[1]) and max(abs(r[0]), abs(r[1])) < 0.5 * np.pi:
                 brackets.append((li, "phase", omega[k], omega[k + 1], r[0], r[1], 0.0))
         ref = math.log(abs(cl[0]) / math.sqrt(2.0))
         r_bw = np.log(np.abs(cl)) - ref
@@ -324,29 +395,36 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         if len(below) and below[0] > 0:
             k = below[0] - 1
             brackets.append((li, "bw", omega[k], omega[k + 1], r_bw[k], r_bw[k + 1], ref))
-    refined, refined_ols = _refine(ev, brackets)
-
-    # Sensitivity peaks: the deepest local minima of |1 + L| on the grid, each narrowed by
-    # successive parabolic interpolation in log(w); the refined crossovers count too.
+    # Crossings are refined on the model itself; alongside, in the same evaluations, the
+    # deepest dips of |1 + L| (sensitivity peaks) and the highest peaks of |L| below 1 (a
+    # resonance that may poke through 0 dB between grid points) are narrowed, and the
+    # first evaluation also carries the Nyquist arc round the origin.
     theta = np.linspace(-0.5 * np.pi, 0.5 * np.pi, 33)
     arc_s = omega[0] * np.exp(1j * theta)
-    dips = [_dip_brackets(omega, np.abs(1.0 + ol)) for ol in ols]
+    crossings = _Crossings()
+    crossings.add(brackets)
+    dips = _Dips(omega, ols)
     arc = None
-    for round_ in range(_DIP_ROUNDS):
-        vertices = np.concatenate([_parabola_vertex(x, y) for x, y in dips])
-        if round_ == 0:
-            # The Nyquist arc round the origin rides along in the first evaluation.
-            extra, _ = ev.at_s(np.concatenate([arc_s, 1j * np.exp(vertices)]))
-            arc = [e[:len(theta)] for e in extra]
-            at_vertex = [e[len(theta):] for e in extra]
-        else:
-            at_vertex, _ = ev.at_omega(np.exp(vertices))
-        start = 0
-        for li, (x, y) in enumerate(dips):
-            count = len(x)
-            values = np.log(np.abs(1.0 + at_vertex[li][start:start + count]))
-            dips[li] = _narrow(x, y, vertices[start:start + count], values)
-            start += count
+    while arc is None or len(crossings.active) or dips.rounds < _DIP_ROUNDS:
+        xc, xv = crossings.proposal(), dips.proposal()
+        s_all = np.concatenate([1j * np.exp(xc), 1j * np.exp(xv), arc_s if arc is None else []])
+        ol_all, cl_all = ev.at_s(s_all)
+        ol_all = np.stack(np.broadcast_arrays(*ol_all))
+        cl_all = np.stack(np.broadcast_arrays(*cl_all))
+        nc, nv = len(xc), len(xv)
+        if nc:
+            pick = np.arange(nc)
+            own = crossings.loop[crossings.active]
+            crossings.update(xc, ol_all[own, pick], cl_all[own, pick], ol_all[:, :nc])
+        if nv:
+            dips.update(xv, ol_all[dips.owner, nc + np.arange(nv)])
+            if dips.rounds == _DIP_ROUNDS:
+                hidden = dips.hidden_crossings()
+                brackets += hidden
+                crossings.add(hidden)
+        if arc is None:
+            arc = list(ol_all[:, nc + nv:])
+    refined, refined_ols = np.exp(crossings.x), crossings.values
 
     turns = nyquist_count(ev, np.concatenate([omega, tail]), ols_all, arc)
 
@@ -382,9 +460,9 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
             gm, gm_w = float(gms[j]), pw[j]
         else:
             gm, gm_w = math.inf, math.nan
-        x, y = dips[li]
-        candidates_w = np.concatenate([np.exp(x[:, 1]), np.array(gw + pw)])
-        candidates_d = np.concatenate([np.exp(y[:, 1]), np.abs(1.0 + at[g_sel + p_sel])])
+        dip_w, dip_d = dips.sensitivity_rows(li)
+        candidates_w = np.concatenate([dip_w, np.array(gw + pw)])
+        candidates_d = np.concatenate([dip_d, np.abs(1.0 + at[g_sel + p_sel])])
         j = int(np.argmin(candidates_d))
         ms, ms_w = float(1.0 / candidates_d[j]), float(candidates_w[j])
         out[name] = LoopMargins(

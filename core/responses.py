@@ -27,7 +27,7 @@ from core.axis import Axis
 from core.gains import GainSet
 from core.loops import CascadeModel, FrequencyAlgebra
 
-SAMPLES = 2048
+SAMPLES = 1024
 _SIGMA_T = 10.0
 
 
@@ -208,11 +208,22 @@ def step_response(axis: Axis, gains: GainSet, loop: str, horizon_s: float,
 def load_step_response(axis: Axis, gains: GainSet, load_torque_nm: float, horizon_s: float,
                        growth_per_s: float = 0.0) -> LoadStepResponse:
     """Speed and position deviation after a load-torque step of ``load_torque_nm`` (motor side)."""
-    def transfer(alg):
-        return CascadeModel(axis, gains, alg).position_disturbance_speed * load_torque_nm
+    return position_and_load_step(axis, gains, load_torque_nm, horizon_s, growth_per_s)[1]
 
+
+def position_and_load_step(axis: Axis, gains: GainSet, load_torque_nm: float, horizon_s: float,
+                           growth_per_s: float = 0.0) -> tuple[StepResponse, LoadStepResponse]:
+    """The position step and the load step over one horizon, from one model evaluation.
+
+    Returns
+    -------
+    (StepResponse, LoadStepResponse)
+        The position loop's unit step (no feedforward) and the load-torque step.
+    """
     contour = _Contour(horizon_s, SAMPLES, growth_per_s)
-    h = transfer(contour.algebra)
+    model = CascadeModel(axis, gains, contour.algebra)
+    y = contour.invert(model.position_closed, 1)
+    h = model.position_disturbance_speed * load_torque_nm
     speed = contour.invert(h, 1)
     position = contour.invert(h, 2)
     t = contour.time_s
@@ -227,4 +238,5 @@ def load_step_response(axis: Axis, gains: GainSet, load_torque_nm: float, horizo
         recovery = math.nan
     else:
         recovery = float(t[outside[-1] + 1])
-    return LoadStepResponse(t, load_torque_nm, speed, position, dip, float(position[pj]), recovery)
+    step = StepResponse(t, y, *step_figures(t, y))
+    return step, LoadStepResponse(t, load_torque_nm, speed, position, dip, float(position[pj]), recovery)
