@@ -13,14 +13,10 @@ import os
 import sys
 from pathlib import Path
 
+from app import cli_robust, cli_sheets
 from core.errors import InputError
+from core.safety import CAUTION
 
-CAUTION = (
-    "CAUTION: these gains come from a model. Before the axis moves: set reduced torque/current and "
-    "speed limits for the first motion, have the emergency stop and guards in place, verify every gain "
-    "on the real axis, follow the drive maker's manual, and defer to local codes, machine-safety "
-    "standards and licensed practice."
-)
 
 
 def _load(preset: str):
@@ -209,6 +205,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true")
     p.add_argument("--csv", help="write the traces to this CSV file")
     p.set_defaults(func=cmd_simulate)
+    cli_sheets.add_commands(sub)
+    cli_robust.add_commands(sub)
     return parser
 
 
@@ -216,7 +214,7 @@ def main(argv: list[str] | None = None, out=None) -> int:
     """Entry point; returns the exit code (0 ok, 2 bad input)."""
     out = out or sys.stdout
     argv = sys.argv[1:] if argv is None else argv
-    commands = {"check", "tune", "simulate"}
+    commands = {"check", "tune", "simulate", "compare", "export", *cli_robust.COMMANDS}
     if not argv or (argv[0] not in commands and not argv[0].startswith("-")):
         from app.window import run
 

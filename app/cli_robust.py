@@ -59,7 +59,7 @@ def _num(x, unit="", digits=4):
 
 def cmd_sweep(args, out) -> int:
     """Sweep the preset's tolerances: worst cases, ranking, flags."""
-    from app.cli import CAUTION
+    from core.safety import CAUTION
     from core.sweep import SweepSettings, sweep, sweep_summary
 
     preset, gains, tolerances, targets = _preset_and_tolerances(args)
@@ -97,7 +97,7 @@ def cmd_sweep(args, out) -> int:
 
 def cmd_autotune(args, out) -> int:
     """Auto-tune against the preset's targets at every tolerance corner."""
-    from app.cli import CAUTION
+    from core.safety import CAUTION
     from core.autotune import autotune, autotune_summary
 
     preset, gains, tolerances, targets = _preset_and_tolerances(args)

@@ -12,7 +12,8 @@ from core.errors import InputError
 
 def cmd_compare(args, out) -> int:
     """Print the gain sets of a preset side by side (text table or JSON)."""
-    from app.cli import CAUTION, _load
+    from app.cli import _load
+    from core.safety import CAUTION
     from core.gainsets import compare, comparison_table, comparison_to_json
 
     preset = _load(args.preset)

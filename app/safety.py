@@ -5,19 +5,11 @@ from __future__ import annotations
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QCheckBox, QDialog, QDialogButtonBox, QLabel, QVBoxLayout, QWidget
 
+from core.safety import CAUTION_LONG
+
 CAUTION_TITLE = "Before you use these gains on a machine"
 
-CAUTION_TEXT = (
-    "Loopwright computes gains, margins and responses from a model. A model is never the "
-    "machine: parameters are uncertain, friction, backlash and resonances differ, and the "
-    "drive's own filters and scaling may not match.\n\n"
-    "Verify every gain set on the real axis before relying on it: start with reduced torque, "
-    "current and speed limits; have guards and a tested emergency stop in place; keep people "
-    "clear of moving parts; follow the drive manufacturer's manual and commissioning procedure, "
-    "the applicable machine-safety standards and local codes, and work under licensed, "
-    "qualified practice.\n\n"
-    "The results are an engineering aid, not a safety function and not a certification."
-)
+CAUTION_TEXT = CAUTION_LONG
 
 ABOUT_TEXT = (
     "<h3>Loopwright</h3>"

@@ -52,6 +52,7 @@ import pint
 import core
 from core.analysis import Analysis, analyse, analysis_summary
 from core.errors import InputError
+from core.safety import CAUTION  # the caution every export carries
 from core.flags import Flag, targets_from_dict
 from core.gains import PI, CurrentGains, GainSet, Notch, PositionGains, SpeedGains
 from core.presets import Preset, dumps_preset
@@ -65,14 +66,7 @@ SHEET_FORMAT_VERSION = 1
 QUANTISATION_WARN = 0.05
 """Relative rounding error above which a row is flagged as heavily quantised (5 %)."""
 
-CAUTION = (
-    "CAUTION: these gains come from a model. Before the axis moves: set reduced torque/current and "
-    "speed limits for the first motion, have the emergency stop and the guards in place, verify every gain "
-    "on the real axis (low-amplitude step and frequency-response tests), follow the drive maker's manual for "
-    "the meaning and units of each parameter, and defer to local codes, machine-safety standards and "
-    "licensed practice."
-)
-"""The safety caution every export carries."""
+
 
 FORMATS = ("csv", "xlsx", "json", "pdf")
 
