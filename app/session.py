@@ -17,6 +17,7 @@ from pathlib import Path
 from PySide6.QtCore import QObject, QTimer, Signal
 from PySide6.QtGui import QUndoCommand, QUndoStack
 
+from app import warmup
 from app.preset_mapping import targets_from_table, tuning_from_table
 from core.analysis import Analysis, analyse
 from core.axis import Axis
@@ -466,6 +467,12 @@ class Session(QObject):
         self._sim_timer.stop()
         if self._sim is None:
             return
+        if not warmup.ready():
+            # The kernel is still compiling in the background: look again shortly.
+            self._simulation_stale = True
+            self._sim_timer.start(100)
+            return
+        self._sim_timer.setInterval(0)
         index = next((i for i, s in enumerate(self._preset.scenarios) if s.get("name") == self.scenario_name), None)
         if index is None:
             return

@@ -13,6 +13,7 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QApplication, QLabel, QMainWindow, QMessageBox, QScrollArea, QSplitter,
                                QTabWidget, QVBoxLayout, QWidget)
 
+from app import warmup
 from app import dialogs
 from app.panels.axis_panel import AxisPanel
 from app.panels.flags_panel import FlagsPanel
@@ -228,6 +229,7 @@ def main_window(preset: Preset | None = None, settings: QSettings | None = None)
 def run(preset_path: str | None = None) -> int:
     """Open the window (on the demo preset or ``preset_path``), show the caution, run; exit code."""
     app = _application()
+    warmup.start()
     window = main_window()
     if preset_path:
         if not window.open_path(preset_path, ask=False):
