@@ -57,20 +57,6 @@ def _gain_rows(gains) -> list[tuple[str, str]]:
     ]
 
 
-def _gains_json(gains) -> dict:
-    return {
-        "name": gains.name,
-        "current": {"kp_v_per_a": gains.current.pi.kp, "ki_v_per_a_s": gains.current.pi.ki,
-                    "decouple_back_emf": gains.current.decouple_back_emf},
-        "speed": {"kp_a_s_per_rad": gains.speed.pi.kp, "ki_a_per_rad": gains.speed.pi.ki,
-                  "feedback_lowpass_hz": gains.speed.feedback_lowpass_hz,
-                  "notches": [{"centre_hz": n.centre_hz, "zeta_zero": n.zeta_zero, "zeta_pole": n.zeta_pole,
-                               "place": n.place} for n in gains.speed.notches]},
-        "position": {"kp_per_s": gains.position.kp_per_s, "ki_per_s2": gains.position.ki_per_s2,
-                     "velocity_ff": gains.position.velocity_ff, "acceleration_ff": gains.position.acceleration_ff},
-    }
-
-
 def _print_check(result, out) -> None:
     print(f"{'loop':9} {'crossover':>11} {'PM':>9} {'GM':>9} {'Ms':>6} {'bandwidth':>11} {'overshoot':>10}  stable",
           file=out)
@@ -115,6 +101,7 @@ def cmd_check(args, out) -> int:
 def cmd_tune(args, out) -> int:
     """Propose gains from the preset's tuning rules and check them."""
     from core.analysis import analyse, analysis_summary, axis_summary
+    from core.export import gain_set_to_dict
     from core.tuning import propose_gains
 
     preset = _load(args.preset)
@@ -123,7 +110,7 @@ def cmd_tune(args, out) -> int:
     result = analyse(preset.axis, gains, targets, preset.constants_check)
     if args.json:
         doc = {"axis": preset.axis.name, "axis_derived": axis_summary(preset.axis, preset.constants_check),
-               "gains": _gains_json(gains),
+               "gains": gain_set_to_dict(gains),
                "rationale": {p.loop: {"rule": p.rule, "text": p.rationale,
                                       "expected_crossover_hz": p.expected_crossover_hz} for p in proposals},
                **analysis_summary(result), "caution": CAUTION}
