@@ -286,7 +286,6 @@ def compare(preset: Preset, names: list[str] | tuple[str, ...] | None = None, ba
     baseline = names[0] if baseline is None else baseline
     if baseline not in names:
         raise InputError("--baseline", baseline, "one of the compared sets: " + ", ".join(names))
-    b = names.index(baseline)
 
     targets = targets_from_dict(preset.targets)
     analyses = tuple(analyse(preset.axis, g, targets, preset.constants_check) for g in sets)
@@ -298,6 +297,41 @@ def compare(preset: Preset, names: list[str] | tuple[str, ...] | None = None, ba
         scenario = str(preset.scenarios[index]["name"])
     else:
         simulations, scenario = tuple(None for _ in sets), ""
+    return comparison_of(preset.axis, names, baseline, analyses, simulations, scenario)
+
+
+def comparison_of(axis, names, baseline: str, analyses, simulations=None, scenario: str = "") -> Comparison:
+    """Lay already computed results of gain sets side by side (what :func:`compare` returns).
+
+    For front ends that keep the analyses of unchanged sets: nothing is recomputed here.
+
+    Parameters
+    ----------
+    axis : Axis
+        The axis the sets were analysed on (its name heads the table; its motor kind names the ampere).
+    names : sequence of str
+        Set names, in column order, one per analysis.
+    baseline : str
+        One of ``names``: the set the deltas are taken against.
+    analyses : sequence of Analysis
+        One per set.
+    simulations : sequence, optional
+        One :class:`core.simulate.SimulationResult` or None per set (None: the move rows
+        of that set hold NaN); default all None.
+    scenario : str
+        Name of the simulated move scenario ("" when none).
+
+    Returns
+    -------
+    Comparison
+    """
+    names, analyses = tuple(names), tuple(analyses)
+    simulations = tuple(simulations) if simulations is not None else tuple(None for _ in names)
+    if not names or len(analyses) != len(names) or len(simulations) != len(names):
+        raise InputError("analyses", len(analyses), f"one analysis and one simulation slot per set ({len(names)})")
+    if baseline not in names:
+        raise InputError("--baseline", baseline, "one of the compared sets: " + ", ".join(names))
+    b = names.index(baseline)
 
     rows = []
     for loop in LOOPS:
@@ -313,7 +347,7 @@ def compare(preset: Preset, names: list[str] | tuple[str, ...] | None = None, ba
     def sim(attr):
         return [math.nan if s is None else getattr(s.metrics, attr) for s in simulations]
 
-    amp = "A peak" if preset.axis.motor.kind == "pmsm" else "A"  # the model's ampere
+    amp = "A peak" if axis.motor.kind == "pmsm" else "A"  # the model's ampere
     rows.append(_row("move", "peak_current_a", "peak current", amp, "lower", names, sim("peak_current_a"), b))
     rows.append(_row("move", "peak_voltage_pct", "peak voltage", "% of available", "lower", names,
                      sim("peak_voltage_pct"), b))
@@ -323,7 +357,7 @@ def compare(preset: Preset, names: list[str] | tuple[str, ...] | None = None, ba
                      [sum(f.severity == "error" for f in a.flags) for a in analyses], b))
     rows.append(_row("flags", "flag_count", "all analysis flags", "", "lower", names,
                      [len(a.flags) for a in analyses], b))
-    return Comparison(preset.axis.name, names, baseline, scenario, tuple(rows), analyses, simulations)
+    return Comparison(axis.name, names, baseline, scenario, tuple(rows), analyses, simulations)
 
 
 # --- output ------------------------------------------------------------------------------
