@@ -25,6 +25,8 @@ from core.errors import InputError
 from core.gains import GainSet
 from core.motor import KT_KE_TOLERANCE, ConstantsCheck
 from core.presets import Preset, builtin_names, builtin_preset, load_preset, save_preset
+from core import export as core_export
+from core import gainsets as core_gainsets
 from core.tuning import Proposal, tune_current, tune_position, tune_speed
 
 DEMO_PRESET = "belt_gantry"
@@ -129,6 +131,9 @@ class Session(QObject):
         The time simulation of the selected scenario finished (when core.simulate exists).
     error(str)
         Something the user asked for could not be done; the text says why.
+    comparison_ready(object)
+        The compared gain sets side by side (a :class:`core.gainsets.Comparison`), or None
+        when fewer than two sets are chosen for comparison.
     """
 
     changed = Signal()
@@ -136,6 +141,7 @@ class Session(QObject):
     results_ready = Signal(object)
     simulation_ready = Signal(object)
     error = Signal(str)
+    comparison_ready = Signal(object)
     file_changed = Signal()
 
     def __init__(self, preset: Preset | None = None, parent: QObject | None = None):
@@ -164,6 +170,7 @@ class Session(QObject):
         self.scenario_name = ""
         self._sim = simulation_module()
         self.path: Path | None = None
+        self._init_comparison()
         self.load_preset(preset if preset is not None else demo_preset())
 
     def _clean_changed(self, _clean: bool) -> None:
@@ -235,6 +242,7 @@ class Session(QObject):
                                  tuple(preset.targets.items()), tuple(preset.tuning.items()))
         moves = [s.get("name", "") for s in preset.scenarios if s.get("kind") == "move"]
         self.scenario_name = moves[-1] if moves else ""
+        self._reset_comparison()
         self.undo_stack.clear()
         self.undo_stack.setClean()
         self.analysis = None
@@ -448,6 +456,7 @@ class Session(QObject):
             return
         self.analysis = result
         self.results_ready.emit(result)
+        self._compare(result)
         self._simulation_stale = True
         if self.simulate_enabled and self._sim is not None:
             self._sim_timer.start()
@@ -496,6 +505,189 @@ class Session(QObject):
             self._simulation_stale = True
             if self._sim is not None:
                 self._sim_timer.start()
+
+
+    # --- gain sets, comparison and sheets ---------------------------------------------------
+    def _edit_gain_sets(self, label: str, edit) -> str | None:
+        """Apply ``edit(preset) -> preset`` (a :mod:`core.gainsets` edit) as one undo step.
+
+        Returns the reason when the core refuses the edit (nothing changes then).
+        """
+        try:
+            new = edit(self.preset)
+        except InputError as err:
+            return self._refuse(err)
+        self._push(label, replace(self._state, gain_sets=new.gain_sets, active=new.active))
+        return None
+
+    def add_gain_set(self, name: str, note: str = "") -> str | None:
+        """A new gain set copied from the active one, made active; the reason when refused."""
+        return self._edit_gain_sets(f"New gain set {name}", lambda p: core_gainsets.add_gain_set(p, name, note))
+
+    def duplicate_gain_set(self, source: str, name: str) -> str | None:
+        """A copy of ``source`` called ``name``, placed after it."""
+        return self._edit_gain_sets(f"Duplicate {source}",
+                                    lambda p: core_gainsets.duplicate_gain_set(p, source, name))
+
+    def rename_gain_set(self, old: str, new: str) -> str | None:
+        """Rename a gain set (the comparison choice follows the new name)."""
+        reason = self._edit_gain_sets(f"Rename {old}", lambda p: core_gainsets.rename_gain_set(p, old, new))
+        if reason is None:
+            new = new.strip()
+            self._compared = tuple(new if n == old else n for n in self._compared)
+            if self._baseline == old:
+                self._baseline = new
+        return reason
+
+    def delete_gain_set(self, name: str) -> str | None:
+        """Delete a gain set; the last one is kept (the reason says so)."""
+        return self._edit_gain_sets(f"Delete gain set {name}", lambda p: core_gainsets.delete_gain_set(p, name))
+
+    def set_gain_set_note(self, name: str, note: str) -> str | None:
+        """Change a gain set's free-text note."""
+        if any(g.name == name and g.note == note for g in self.gain_sets):
+            return None
+        return self._edit_gain_sets(f"Note of {name}", lambda p: core_gainsets.set_note(p, name, note))
+
+    def import_gain_set(self, path: str | Path) -> str | None:
+        """Restore the gain set of a JSON sheet as a new, active gain set; the reason when refused.
+
+        The set keeps its stored name unless that is taken; then " (imported)" is added.
+        """
+        try:
+            gains = core_export.import_sheet_json(path, self.preset)
+        except InputError as err:
+            return self._refuse(err)
+        taken = {g.name for g in self.gain_sets}
+        name, k = gains.name, 1
+        while name in taken:
+            name = f"{gains.name} (imported{'' if k == 1 else f' {k}'})"
+            k += 1
+
+        def edit(p: Preset) -> Preset:
+            p = core_gainsets.add_gain_set(p, name, gains.note)
+            return core_gainsets.replace_gain_set(p, gains.renamed(name))
+
+        return self._edit_gain_sets(f"Import gain set {name}", edit)
+
+    def config_sheet(self, name: str, profile) -> "core_export.Sheet":
+        """The drive configuration sheet of gain set ``name`` through ``profile`` (InputError when refused)."""
+        return core_export.sheet(self.preset, name, profile)
+
+    def write_sheet(self, sheet, path: str | Path, fmt: str) -> Path:
+        """Write ``sheet`` as ``fmt`` (csv, xlsx, json, pdf), atomically; InputError when it cannot."""
+        return core_export.write_sheet(sheet, path, fmt)
+
+    def _init_comparison(self) -> None:
+        self._compared: tuple[str, ...] = ()
+        self._baseline = ""
+        self.comparison = None
+        # Results of sets that are not being edited, kept by what they depend on (GainSet is hashable),
+        # so a slider tick re-analyses only the active set.
+        self._analysis_cache: dict = {}
+        self._sim_cache: dict = {}
+        self.simulation_ready.connect(self._simulate_compared)
+
+    def _reset_comparison(self) -> None:
+        self._compared, self._baseline, self.comparison = (), "", None
+        self._analysis_cache.clear()
+        self._sim_cache.clear()
+
+    @property
+    def compared(self) -> tuple[str, ...]:
+        """Names of the gain sets chosen for comparison that still exist, in file order."""
+        chosen = set(self._compared)
+        return tuple(g.name for g in self.gain_sets if g.name in chosen)
+
+    @property
+    def baseline(self) -> str:
+        """The compared set differences are taken against (the first compared one by default)."""
+        names = self.compared
+        return self._baseline if self._baseline in names else (names[0] if names else "")
+
+    def set_compared(self, names) -> None:
+        """Choose the gain sets to compare (two or more draw together); one recompute."""
+        names = tuple(dict.fromkeys(names))
+        if set(names) == set(self._compared):
+            return
+        self._compared = names
+        self.schedule()
+
+    def set_baseline(self, name: str) -> None:
+        """Choose the set the comparison's differences are taken against."""
+        if name != self._baseline:
+            self._baseline = name
+            if len(self.compared) > 1:
+                self.schedule()
+
+    @staticmethod
+    def _remember(cache: dict, key, value, size: int = 24) -> None:
+        cache[key] = value
+        while len(cache) > size:
+            cache.pop(next(iter(cache)))
+
+    def _scenario_index(self) -> int | None:
+        return next((i for i, s in enumerate(self._preset.scenarios) if s.get("name") == self.scenario_name), None)
+
+    def _compare(self, active_analysis: Analysis) -> None:
+        """Lay the compared sets side by side (only when two or more are chosen)."""
+        names, state = self.compared, self._state
+        if len(names) < 2:
+            if self.comparison is not None:
+                self.comparison = None
+                self.comparison_ready.emit(None)
+            return
+        sets = {g.name: g for g in state.gain_sets}
+        try:
+            targets = targets_from_table(dict(state.targets))
+            analyses = []
+            for name in names:
+                key = (state.axis, sets[name], state.targets, state.constants)
+                if name == state.active:
+                    result = active_analysis
+                else:
+                    result = self._analysis_cache.get(key)
+                    if result is None:
+                        result = analyse(state.axis, sets[name], targets, state.constants)
+                self._remember(self._analysis_cache, key, result)
+                analyses.append(result)
+            sims = [self._sim_cache.get((state.axis, sets[n], self.scenario_name)) for n in names]
+            self.comparison = core_gainsets.comparison_of(state.axis, names, self.baseline, analyses, sims,
+                                                          self.scenario_name if any(sims) else "")
+        except InputError as err:
+            self._refuse(err)
+            return
+        except Exception as err:  # noqa: BLE001 - a core failure must not take the window down
+            self._refuse(InputError("comparison", type(err).__name__, f"gain sets the analysis can solve ({err})"))
+            return
+        self.comparison_ready.emit(self.comparison)
+
+    def _simulate_compared(self, active_result) -> None:
+        """After the active set's move: the other compared sets' moves (cached), then the comparison again."""
+        names, state = self.compared, self._state
+        index = self._scenario_index()
+        if len(names) < 2 or index is None or self._sim is None or self.comparison is None \
+                or self.comparison.sets != names:
+            return
+        sets = {g.name: g for g in state.gain_sets}
+        scenario = self._preset.scenarios[index]
+        sims = []
+        for name in names:
+            key = (state.axis, sets[name], self.scenario_name)
+            result = self._sim_cache.get(key)
+            if name == state.active and not isinstance(active_result, Exception):
+                result = active_result
+            elif result is None:
+                try:
+                    result = self._sim.simulate_scenario(state.axis, sets[name], scenario, f"scenarios[{index}]")
+                except Exception:  # noqa: BLE001 - that set's move rows stay empty
+                    result = None
+            if result is not None:
+                self._remember(self._sim_cache, key, result)
+            sims.append(result)
+        self.comparison = core_gainsets.comparison_of(state.axis, names, self.baseline, self.comparison.analyses,
+                                                      sims, self.scenario_name)
+        self.comparison_ready.emit(self.comparison)
 
 
 def _constants_of(motor) -> ConstantsCheck:

@@ -14,6 +14,17 @@ PAPER = "#f4f2ec"
 CARD = "#ffffff"
 RULE = "#d9d5cb"
 INVALID_BG = "#fbe3df"
+# Compared gain sets: each slot has a colour and a dash pattern (dash/gap lengths in pen widths; None is
+# solid), so the sets stay apart in grey print and for colour-blind readers. Our own choice of hues,
+# spread in lightness as well as hue.
+COMPARE_STYLES = (
+    ("#23467f", None),
+    ("#d9811e", (7.0, 3.0)),
+    ("#2a9484", (1.5, 2.5)),
+    ("#b0306f", (7.0, 2.5, 1.5, 2.5)),
+    ("#55534e", (12.0, 3.0, 1.5, 3.0, 1.5, 3.0)),
+    ("#8a9a1c", (3.5, 3.5)),
+)
 
 STYLE_SHEET = f"""
 QWidget {{ color: {INK}; }}

@@ -12,6 +12,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
 
+from app.plots.overlay import Overlay
 from app.plots.style import (DecadeRules, LOOP_PEN, NO_BORDER, SEVERITY_BORDER, SEVERITY_PEN, curve,
                              hline, pen, styled_plot, vline)
 from app.theme import LOOP_COLOURS, LOOP_TITLES, MUTED
@@ -60,6 +61,7 @@ class BodePlots:
             line.hide()
         self.mag_curve = curve(mag, LOOP_PEN[loop])
         self.phase_curve = curve(phase, LOOP_PEN[loop])
+        self.mag_overlay, self.phase_overlay = Overlay(mag), Overlay(phase)
         # Margin bars: GM from the curve up to 0 dB at the phase crossover; PM from -180 deg up to the curve.
         self.gm_bar = curve(mag, pen(LOOP_COLOURS[loop], 2), ignore_bounds=True)
         self.pm_bar = curve(phase, pen(LOOP_COLOURS[loop], 2), ignore_bounds=True)
@@ -111,6 +113,28 @@ class BodePlots:
             if math.isfinite(fr):
                 line.setValue(math.log10(fr))
 
+    def compare(self, names, analyses) -> None:
+        """Draw every compared set's |L| and ∠L together (no names: the active set alone)."""
+        if not names:
+            for o in (self.mag_overlay, self.phase_overlay):
+                o.hide()
+            self.mag_curve.show()
+            self.phase_curve.show()
+            return
+        self.mag_curve.hide()
+        self.phase_curve.hide()
+        mags, phases = [], []
+        for a in analyses:
+            m = a.margins[self.loop]
+            f = a.frequency.omega_rad_s / (2 * math.pi)
+            db, deg = open_loop_db_deg(a.frequency.open_loop[self.loop], m.phase_margin_hz
+                                       if math.isfinite(m.phase_margin_hz) else m.crossover_hz, f)
+            x = np.log10(f)
+            mags.append((x, db))
+            phases.append((x, deg))
+        self.mag_overlay.show(names, mags)
+        self.phase_overlay.show(names, phases)
+
     def _place_text(self, *_) -> None:
         self.mag_text.setPos(self.mag.vb.width() - 4, 2)
         self.phase_text.setPos(self.phase.vb.width() - 4, self.phase.vb.height() - 2)
@@ -121,10 +145,14 @@ class BodePlots:
         x0, x1 = math.log10(self._f[0]), math.log10(self._f[-1])
         db = np.clip(self._db, -120.0, 160.0)
         lo, hi = float(db.min()), float(db.max())
+        if self.mag_overlay.active:
+            lo, hi = self.mag_overlay.y_extent() or (lo, hi)
         lo, hi = max(lo, -100.0), min(hi, 120.0)
         pad = 0.06 * (hi - lo + 1)
         self.mag.vb.setRange(xRange=(x0, x1), yRange=(lo - pad, hi + pad), padding=0)
         lo, hi = float(np.min(self._deg)), float(np.max(self._deg))
+        if self.phase_overlay.active:
+            lo, hi = self.phase_overlay.y_extent() or (lo, hi)
         lo, hi = max(min(lo, -200.0), -450.0), min(max(hi, -60.0), 360.0)
         self.phase.vb.setRange(xRange=(x0, x1), yRange=(lo - 10, hi + 10), padding=0)
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 
+from app.plots.overlay import Overlay
 from app.plots.style import LOOP_PEN, NO_BORDER, SEVERITY_BORDER, curve, hline, styled_plot
 
 
@@ -20,6 +21,7 @@ class LoadStepPlots:
         hline(position, 0.0)
         self.speed_curve = curve(speed, LOOP_PEN["speed"])
         self.position_curve = curve(position, LOOP_PEN["position"])
+        self.speed_overlay, self.position_overlay = Overlay(speed, (-4, 4)), Overlay(position)
         self.text = pg.TextItem("", color="#555", anchor=(1, 1))
         self.text.setParentItem(speed.vb)
         speed.vb.sigResized.connect(self._place_text)
@@ -37,6 +39,19 @@ class LoadStepPlots:
             self.speed.setTitle(title, size="9pt")
         self.text.setText(f"dip {ls.speed_dip_rad_s:.3g} rad/s\nerror {ls.position_error_rad * 1e3:.3g} mrad")
 
+    def compare(self, names, analyses) -> None:
+        """Draw every compared set's load step together (no names: the active set alone)."""
+        if not names:
+            for o in (self.speed_overlay, self.position_overlay):
+                o.hide()
+            self.speed_curve.show()
+            self.position_curve.show()
+            return
+        self.speed_curve.hide()
+        self.position_curve.hide()
+        self.speed_overlay.show(names, [(a.load_step.time_s, a.load_step.speed_rad_s) for a in analyses])
+        self.position_overlay.show(names, [(a.load_step.time_s, a.load_step.position_rad) for a in analyses])
+
     def _place_text(self, *_):
         self.text.setPos(self.speed.vb.width() - 4, self.speed.vb.height() - 2)
 
@@ -44,8 +59,10 @@ class LoadStepPlots:
         if self._data is None:
             return
         t, w, x = self._data
-        for plot, y in ((self.speed, w), (self.position, x)):
+        for plot, y, overlay in ((self.speed, w, self.speed_overlay), (self.position, x, self.position_overlay)):
             lo, hi = float(np.min(y)), float(np.max(y))
+            if overlay.active:
+                lo, hi = overlay.y_extent(0.0, float(t[-1])) or (lo, hi)
             lo, hi = min(lo, 0.0), max(hi, 0.0)
             pad = 0.08 * (hi - lo) or 1e-9
             plot.vb.setRange(xRange=(0.0, float(t[-1])), yRange=(lo - pad, hi + pad), padding=0)

@@ -13,6 +13,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
 
+from app.plots.overlay import Overlay
 from app.plots.style import LOOP_PEN, NO_BORDER, SEVERITY_BORDER, curve, hline, pen, styled_plot
 from app.theme import LOOP_COLOURS, MUTED, SEVERITY_COLOURS
 
@@ -58,6 +59,8 @@ class MovePlots:
         self.i_act = curve(self.current, LOOP_PEN["current"])
         self.v_demand = curve(self.voltage, pen(MUTED, 1, Qt.PenStyle.DashLine))
         self.v_cmd = curve(self.voltage, LOOP_PEN["current"])
+        self.overlays = (Overlay(self.position, (-4, 4)), Overlay(self.current), Overlay(self.voltage))
+        self._single = (self.error_curve, self.i_cmd, self.i_act, self.v_cmd, self.v_demand)
         self.message = pg.TextItem("", color=SEVERITY_COLOURS["error"], anchor=(0, 0))
         self.message.setParentItem(self.position.vb)
         self.message.setPos(6, 4)
@@ -113,6 +116,33 @@ class MovePlots:
         self._ranges = (float(tt[-1]), err, max(i_lim, float(np.max(np.abs(i_act)))),
                         max(v_lim, float(np.max(np.abs(v_dem)))))
 
+    def compare(self, names, simulations, axis) -> None:
+        """Draw every compared set's following error, current and voltage together.
+
+        ``simulations[i]`` is None for a set not simulated yet (its slot stays empty);
+        no names: back to the active set alone.
+        """
+        if not names:
+            for o in self.overlays:
+                o.hide()
+            for item in self._single:
+                item.show()
+            return
+        for item in self._single:
+            item.hide()
+        series = ([], [], [])
+        for result in simulations:
+            if result is None or len(result.time_s) < 2:
+                for s in series:
+                    s.append(None)
+                continue
+            err = result.position_reference_rad / axis.load.ratio - result.load_position
+            tt, err, i_act, v_cmd = _thin(result.time_s, err, result.current_a, result.voltage_command_v)
+            for s, y in zip(series, (err, i_act, v_cmd)):
+                s.append((tt, y))
+        for overlay, data in zip(self.overlays, series):
+            overlay.show(names, data)
+
     def show_error(self, text: str) -> None:
         self.message.setText(text)
 
@@ -121,6 +151,13 @@ class MovePlots:
             return
         t1, err, i_max, v_max = self._ranges
         e = float(np.max(np.abs(err))) or 1e-9
+        extents = [o.y_extent() if o.active else None for o in self.overlays]
+        if extents[0]:
+            e = max(abs(extents[0][0]), abs(extents[0][1])) or e
+        if extents[1]:
+            i_max = max(i_max, abs(extents[1][0]), abs(extents[1][1]))
+        if extents[2]:
+            v_max = max(v_max, abs(extents[2][0]), abs(extents[2][1]))
         self.position.vb.setRange(xRange=(0.0, t1), yRange=(-1.1 * e, 1.1 * e), padding=0)
         self.current.vb.setRange(yRange=(-1.15 * i_max, 1.15 * i_max), padding=0)
         self.voltage.vb.setRange(yRange=(-1.15 * v_max, 1.15 * v_max), padding=0)

@@ -7,6 +7,7 @@ import pyqtgraph as pg
 from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QTabWidget, QVBoxLayout, QWidget
 
 from app.flag_kinds import flag_kind
+from app.panels.comparison_table import ComparisonTable
 from app.plots.bode_plot import BodePlots
 from app.plots.disturbance_plot import LoadStepPlots
 from app.plots.step_plot import StepPlot
@@ -38,7 +39,7 @@ class PlotsPanel(QTabWidget):
         self.steps: dict[str, StepPlot] = {}
         self.bode: dict[str, BodePlots] = {}
         for col, loop in enumerate(LOOPS):
-            self.steps[loop] = StepPlot(self.loops_view.addPlot(row=0, col=col), loop)
+            self.steps[loop] = StepPlot(self.loops_view.addPlot(row=0, col=col), loop, legend=col == 0)
         for col, loop in enumerate(LOOPS):
             mag = self.loops_view.addPlot(row=1, col=col)
             phase = self.loops_view.addPlot(row=2, col=col)
@@ -72,6 +73,10 @@ class PlotsPanel(QTabWidget):
                 session.simulation_ready.connect(self._simulation)
             except Exception:  # noqa: BLE001 - the move view is optional
                 self.move = None
+        self.comparison_table = ComparisonTable()
+        self.comparison_table.setObjectName("comparison_view")
+        self.addTab(self.comparison_table, "Compare")
+        session.comparison_ready.connect(self.show_comparison)
         self.held = False
         self.selected = None
         self.update_count = 0
@@ -111,6 +116,23 @@ class PlotsPanel(QTabWidget):
         self.load_step.update(analysis)
         self.stiffness.update(analysis, axis)
         self._alerts(analysis.flags)
+        if not self.held:
+            self.fit()
+
+    def show_comparison(self, comparison) -> None:
+        """Draw the compared sets together in every plot and fill the metrics table (None: stop)."""
+        names = () if comparison is None else comparison.sets
+        analyses = () if comparison is None else comparison.analyses
+        for loop in LOOPS:
+            self.steps[loop].compare(names, analyses)
+            self.bode[loop].compare(names, analyses)
+        self.load_step.compare(names, analyses)
+        self.stiffness.compare(names, analyses)
+        if self.move is not None:
+            simulated = comparison is not None and any(s is not None for s in comparison.simulations)
+            self.move.compare(names if simulated else (), comparison.simulations if simulated else (),
+                              self.session.axis)
+        self.comparison_table.show_comparison(comparison)
         if not self.held:
             self.fit()
 
