@@ -49,3 +49,48 @@ def save_path(parent: QWidget | None, suggested: str = "") -> str:
     if path and not path.lower().endswith(".toml"):
         path += ".toml"
     return path
+
+
+SHEET_FILTERS = {"csv": "CSV sheet (*.csv)", "xlsx": "Excel workbook (*.xlsx)", "json": "JSON sheet (*.json)",
+                 "pdf": "PDF report (*.pdf)"}
+
+
+def ask_text(parent: QWidget | None, title: str, label: str, text: str = "") -> str | None:
+    """One line of text from the user (None when cancelled)."""
+    from PySide6.QtWidgets import QInputDialog
+
+    value, ok = QInputDialog.getText(parent, title, label, text=text)
+    return value if ok else None
+
+
+def confirm_export(parent: QWidget | None, gain_set: str, errors: list[str]) -> bool:
+    """Second confirmation before exporting a gain set with error-level findings: True to export."""
+    box = QMessageBox(QMessageBox.Icon.Warning, "Export a gain set with errors",
+                      f"Gain set “{gain_set}” has {len(errors)} error-level finding(s):", parent=parent)
+    box.setInformativeText("\n".join(f"• {e}" for e in errors[:8]) + ("\n…" if len(errors) > 8 else "")
+                           + "\n\nExport it anyway? The sheet will list these findings at the top.")
+    box.setStandardButtons(QMessageBox.StandardButton.Yes | QMessageBox.StandardButton.Cancel)
+    box.setDefaultButton(QMessageBox.StandardButton.Cancel)
+    return box.exec() == QMessageBox.StandardButton.Yes
+
+
+def open_profile_path(parent: QWidget | None, folder: str = "") -> str:
+    """An export profile file ("" when cancelled)."""
+    path, _ = QFileDialog.getOpenFileName(parent, "Export profile", folder,
+                                          "Export profiles (*.toml);;All files (*)")
+    return path
+
+
+def export_path(parent: QWidget | None, suggested: str, fmt: str) -> str:
+    """Where to write a sheet in ``fmt`` ("" when cancelled); the extension is added when missing."""
+    path, _ = QFileDialog.getSaveFileName(parent, "Export sheet as", suggested,
+                                          f"{SHEET_FILTERS.get(fmt, fmt)};;All files (*)")
+    if path and not path.lower().endswith(f".{fmt}"):
+        path += f".{fmt}"
+    return path
+
+
+def open_sheet_path(parent: QWidget | None, folder: str = "") -> str:
+    """A JSON sheet to import ("" when cancelled)."""
+    path, _ = QFileDialog.getOpenFileName(parent, "Import sheet", folder, f"{SHEET_FILTERS['json']};;All files (*)")
+    return path
