@@ -17,6 +17,7 @@ from app import warmup
 from app import dialogs
 from app.panels.axis_panel import AxisPanel
 from app.panels.flags_panel import FlagsPanel
+from app.panels.gain_sets_panel import GainSetsPanel
 from app.panels.gains_panel import GainsPanel
 from app.panels.targets_panel import TargetsPanel
 from app.plots.plots_panel import PlotsPanel
@@ -46,6 +47,7 @@ class MainWindow(QMainWindow):
         self.settings = settings if settings is not None else QSettings("Loopwright", "Loopwright")
         self.setObjectName("MainWindow")
         self.gains_panel = GainsPanel(session)
+        self.gain_sets_panel = GainSetsPanel(session)
         self.axis_panel = AxisPanel(session)
         self.targets_panel = TargetsPanel(session)
         self.plots = PlotsPanel(session)
@@ -53,6 +55,7 @@ class MainWindow(QMainWindow):
         self.editors = QTabWidget()
         self.editors.setObjectName("editors")
         self.editors.addTab(_scrolled(self.gains_panel), "Loop gains")
+        self.editors.addTab(self.gain_sets_panel, "Gain sets")
         self.editors.addTab(_scrolled(self.axis_panel), "Axis model")
         self.editors.addTab(_scrolled(self.targets_panel), "Targets && rules")
         findings = QWidget()
@@ -106,6 +109,9 @@ class MainWindow(QMainWindow):
         self._action(file_menu, "&Save", self.save, QKeySequence.StandardKey.Save)
         self._action(file_menu, "Save &as…", self.save_as, QKeySequence.StandardKey.SaveAs)
         file_menu.addSeparator()
+        self._action(file_menu, "&Export sheet…", self.export_sheet)
+        self._action(file_menu, "&Import sheet (JSON)…", self.import_sheet)
+        file_menu.addSeparator()
         self._action(file_menu, "&Quit", self.close, QKeySequence.StandardKey.Quit)
         edit = bar.addMenu("&Edit")
         undo = self.session.undo_stack.createUndoAction(self, "&Undo")
@@ -130,6 +136,27 @@ class MainWindow(QMainWindow):
     def _update_title(self) -> None:
         mark = " •" if self.session.dirty else ""
         self.setWindowTitle(f"Loopwright — {self.session.display_name}{mark}")
+
+    def export_sheet(self) -> None:
+        """File > Export sheet…: the export dialog on the active gain set (modal)."""
+        from app.export_dialog import ExportDialog
+
+        dialog = ExportDialog(self.session, self)
+        if dialog.exec() and dialog.written is not None:
+            self.statusBar().showMessage(f"Exported {dialog.written}", 8000)
+
+    def import_sheet(self) -> bool:
+        """File > Import sheet (JSON)…: restore a sheet's gain set as a new, active gain set."""
+        folder = str(self.session.path.parent) if self.session.path else ""
+        path = dialogs.open_sheet_path(self, folder)
+        if not path:
+            return False
+        reason = self.session.import_gain_set(path)
+        if reason:
+            dialogs.show_error(self, "Cannot import sheet", f"{Path(path).name}\n\n{reason}")
+            return False
+        self.statusBar().showMessage(f"Imported gain set “{self.session.active}” from {Path(path).name}", 8000)
+        return True
 
     def about(self) -> None:
         QMessageBox.about(self, "About Loopwright", ABOUT_TEXT)
