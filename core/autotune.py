@@ -116,6 +116,8 @@ class AutotuneResult:
     evaluations: int
     corners: int
     elapsed_s: float
+    position_kp_choice: str = ""
+    """How position Kp was chosen, in words (separation rule, objective, or pulled back to hold a constraint)."""
 
 
 class _Cancelled(Exception):
@@ -136,7 +138,7 @@ def autotune(axis: Axis, base: GainSet, tolerances: Tolerances, targets: Targets
              scenario: dict | None = None, gain_ranges: dict | None = None,
              progress: Callable[[float, str], None] | None = None,
              cancel: Callable[[], bool] | None = None, name: str = "auto-tuned",
-             max_iterations: int = 40) -> AutotuneResult:
+             max_iterations: int = 40, speed_to_position_ratio: float | None = None) -> AutotuneResult:
     """Maximise ``objective`` subject to the margins at every tolerance corner.
 
     Parameters
@@ -169,6 +171,13 @@ def autotune(axis: Axis, base: GainSet, tolerances: Tolerances, targets: Targets
         Name of the new gain set.
     max_iterations : int
         SLSQP iterations per phase.
+    speed_to_position_ratio : float, optional
+        Speed crossover over position gain for objectives other than "position_gain"
+        (default :class:`core.tuning.TuningSettings`' 4; never below ``targets.separation_min``).
+        The speed-loop objectives do not depend on the position gain, so the optimiser
+        would leave it wherever its constraints allow; it is set instead as a practitioner
+        sets it, from the worst-case speed crossover over the corners divided by this
+        ratio (common practice: 3-10), and pulled back only if a constraint needs it.
 
     Returns
     -------
@@ -316,6 +325,9 @@ def autotune(axis: Axis, base: GainSet, tolerances: Tolerances, targets: Targets
                                       count["n"], corners, time.perf_counter() - t0)
             z_best = _pull_back(lambda z: (None, np.array([1.0 if sat_ok(_gains_at(base, z, name, "")) else -1.0]),
                                            None, None), z_feas, z_best)
+        z_best, kp_choice = _position_kp_by_separation(evaluate, z_best, base, objective, targets,
+                                                       speed_to_position_ratio, low[3], high[3], axis, factors,
+                                                       omega, name)
         value, slack, rep, g = evaluate(z_best)
         reports = reports_of(rep)
         at_edge = [VARIABLES[i] for i in range(4) if z_best[i] >= high[i] - 1e-3]
@@ -327,7 +339,8 @@ def autotune(axis: Axis, base: GainSet, tolerances: Tolerances, targets: Targets
             status = "unbounded"
         binding = min(reports, key=lambda r: r.slack / _SCALE[_kind(r.name)]).name if reports else ""
         note = (f"Auto-tuned for worst-case {objective.replace('_', ' ')} over {corners} tolerance variants "
-                f"(corners and nominal): {value:.4g} against {start_value:.4g} at the start; binding: {binding}.")
+                f"(corners and nominal): {value:.4g} against {start_value:.4g} at the start; binding: {binding}. "
+                f"{kp_choice}")
         gains = g.renamed(name, note)
         if status == "unbounded":
             message = (f"The objective was still rising at the edge of the search box ({', '.join(at_edge)} at "
@@ -338,10 +351,44 @@ def autotune(axis: Axis, base: GainSet, tolerances: Tolerances, targets: Targets
         if progress is not None:
             progress(1.0, "done")
         return AutotuneResult(status, gains, objective, value, start_value, reports, binding, message,
-                              count["n"], corners, time.perf_counter() - t0)
+                              count["n"], corners, time.perf_counter() - t0, kp_choice)
     except _Cancelled:
         return AutotuneResult("cancelled", None, objective, math.nan, math.nan, (), "", "Cancelled; nothing was changed.",
                               count["n"], corners, time.perf_counter() - t0)
+
+
+def _position_kp_by_separation(evaluate, z, base, objective, targets, ratio, low, high, axis, factors,
+                               omega, name):
+    """Position Kp from the speed->position separation (see :func:`autotune`): (z, words).
+
+    The speed loop does not depend on the position gain (it is broken with the
+    position loop open), so changing z[3] moves no speed-loop constraint; only the
+    position loop's own margins and the separation can bind, and then the gain is
+    bisected (in log) back towards the optimiser's value until every slack holds.
+    """
+    if objective == "position_gain":
+        return z, (f"Position Kp {base.position.kp_per_s * math.exp(z[3]):.4g} 1/s is the objective, "
+                   "maximised under the constraints.")
+    from core.tuning import TuningSettings
+
+    ratio = max(float(ratio if ratio is not None else TuningSettings().speed_to_position_ratio),
+                float(targets.separation_min))
+    g = _gains_at(base, z, name, "")
+    fc = float(np.nanmin(variant_margins(axis, g, factors, omega)["speed"].crossover_hz))
+    kp_rule = 2.0 * math.pi * fc / ratio
+    z_rule = z.copy()
+    z_rule[3] = float(np.clip(math.log(kp_rule / base.position.kp_per_s), low, high))
+    how = (f"Position Kp from the speed->position separation: worst-case speed crossover {fc:.4g} Hz / {ratio:g} "
+           f"-> {kp_rule:.4g} 1/s")
+    if objective == "stiffness" and z[3] > z_rule[3]:
+        return z, (f"Position Kp {base.position.kp_per_s * math.exp(z[3]):.4g} 1/s chosen by the optimiser for "
+                   f"stiffness (above the separation rule's {kp_rule:.4g} 1/s).")
+    z_new = _pull_back(evaluate, z, z_rule)
+    kp = base.position.kp_per_s * math.exp(z_new[3])
+    if abs(z_new[3] - z_rule[3]) < 1e-9:
+        clipped = abs(z_rule[3] - math.log(kp_rule / base.position.kp_per_s)) > 1e-9
+        return z_new, how + (f", clipped to the allowed range: {kp:.4g} 1/s." if clipped else ".")
+    return z_new, how + f"; pulled back to {kp:.4g} 1/s so that every corner keeps its margins."
 
 
 def _kind(name: str) -> str:
@@ -383,6 +430,59 @@ def _saturation_check(axis: Axis, scenario: dict | None):
     return ok
 
 
+def profile_gain_ranges(preset, gains: GainSet, profile) -> tuple[dict, list[str]]:
+    """The export profile's min/max rows as :func:`autotune` ``gain_ranges`` (SI), with notes.
+
+    A parallel-form row's drive value is its SI value times a constant (units, ampere
+    convention, per-unit bases, sample time: :func:`core.export.convert_row`), so its
+    drive-unit [min, max] divides back to an SI range exactly; the constant is found by
+    converting the starting gains. A ``current.ki`` range bounds the current-loop scale
+    like a ``current.kp`` range (the tuner scales both together). Rows in series or
+    integral-time form bound a ratio of two gains, which a box on each gain cannot
+    express; they are skipped and named in the notes, as are rows of gains the tuner
+    does not vary. A minimum <= 0 leaves the low side open.
+
+    Returns
+    -------
+    (dict, list of str)
+        ``{"current.kp" | "speed.kp" | "speed.ki" | "position.kp": (low, high)}`` in SI
+        gain units, and one note per row used or skipped.
+    """
+    from core.export import GAINS, convert_row, resolve_bases, sample_time_s
+
+    bases = resolve_bases(profile, preset)
+    ranges: dict = {}
+    notes: list[str] = []
+    tunable = ("current.kp", "current.ki", "speed.kp", "speed.ki", "position.kp")
+    for row in profile.rows:
+        if not (math.isfinite(row.minimum) or math.isfinite(row.maximum)):
+            continue
+        if row.gain not in tunable:
+            notes.append(f"{row.label} ({row.gain}): not a gain the auto-tuner varies; range not used")
+            continue
+        if row.form != "parallel":
+            notes.append(f"{row.label} ({row.gain}): {row.form.replace('_', ' ')} form bounds a ratio of two "
+                         "gains, not one gain; range not used")
+            continue
+        si, drive, _ = convert_row(row, gains, bases, sample_time_s(preset, GAINS[row.gain].loop))
+        if not (math.isfinite(si) and si > 0 and math.isfinite(drive) and drive > 0):
+            notes.append(f"{row.label} ({row.gain}): the starting gain is zero or not convertible; range not used")
+            continue
+        per_si = drive / si
+        lo = row.minimum / per_si if row.minimum > 0 else 1e-12 * si
+        hi = row.maximum / per_si if math.isfinite(row.maximum) else math.inf
+        key = row.gain
+        if key == "current.ki":
+            # Kp and Ki scale together: a Ki range is the same range of the scale, i.e. of Kp.
+            lo, hi, key = lo * gains.current.pi.kp / si, hi * gains.current.pi.kp / si, "current.kp"
+        if key in ranges:
+            lo, hi = max(lo, ranges[key][0]), min(hi, ranges[key][1])
+        ranges[key] = (lo, hi)
+        notes.append(f"{row.label} ({row.gain}): [{row.minimum:g}, {row.maximum:g}] {row.unit} -> "
+                     f"{key} in [{lo:.4g}, {hi:.4g}] SI")
+    return ranges, notes
+
+
 def autotune_summary(result: AutotuneResult) -> dict:
     """The JSON shape of ``loopwright autotune --json`` (SI; non-finite as null)."""
     def num(x):
@@ -403,10 +503,12 @@ def autotune_summary(result: AutotuneResult) -> dict:
             "current": {"kp_v_per_a": g.current.pi.kp, "ki_v_per_a_s": g.current.pi.ki},
             "speed": {"kp_a_s_per_rad": g.speed.pi.kp, "ki_a_per_rad": g.speed.pi.ki},
             "position": {"kp_per_s": g.position.kp_per_s}},
+        "position_kp_choice": result.position_kp_choice,
         "evaluations": result.evaluations,
         "corners": result.corners,
         "elapsed_s": result.elapsed_s,
     }
 
 
-__all__ = ["OBJECTIVES", "AutotuneResult", "ConstraintReport", "autotune", "autotune_summary", "PARAMETERS"]
+__all__ = ["OBJECTIVES", "AutotuneResult", "ConstraintReport", "autotune", "autotune_summary", "profile_gain_ranges",
+           "PARAMETERS"]

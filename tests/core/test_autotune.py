@@ -76,3 +76,39 @@ def test_bad_input(kw):
     p = builtin_preset("belt_gantry")
     with pytest.raises(InputError):
         autotune(p.axis, p.active_gain_set, tolerances_from_dict(p.tolerances, p.axis), **kw)
+
+
+def test_speed_objective_sets_position_kp_by_separation():
+    """Speed-bandwidth objective: position Kp = worst-case speed crossover x 2 pi / ratio (common practice:
+    speed crossover 3-10x the position gain), unless a constraint pulled it back; the report says which."""
+    p = builtin_preset("belt_gantry")
+    tol = tolerances_from_dict(p.tolerances, p.axis)
+    targets = targets_from_dict(p.targets)
+    r = autotune(p.axis, p.active_gain_set, tol, targets, speed_to_position_ratio=5.0)
+    assert r.status == "optimal"
+    assert "separation" in r.position_kp_choice
+    worst_fc = min(loop_margins(varied_axis(p.axis, factor_dict(row)), r.gains)[0]["speed"].crossover_hz
+                   for row in variant_factors(tol, "corners"))
+    ratio = max(5.0, targets.separation_min)
+    if "pulled back" not in r.position_kp_choice:
+        assert r.gains.position.kp_per_s == pytest.approx(2 * math.pi * worst_fc / ratio, rel=2e-3)
+    assert r.gains.position.kp_per_s > 0.5 * p.active_gain_set.position.kp_per_s
+
+
+def test_profile_rows_become_si_gain_ranges():
+    """per_sample_counts: speed.kp max 1000 mA/(count/s) -> SI by the row's own conversion factor."""
+    from core.autotune import profile_gain_ranges
+    from core.export import GAINS, convert_row, resolve_bases, resolve_profile, sample_time_s
+
+    p = builtin_preset("belt_gantry")
+    g = p.active_gain_set
+    prof = resolve_profile("per_sample_counts")
+    ranges, notes = profile_gain_ranges(p, g, prof)
+    row = next(r for r in prof.rows if r.gain == "speed.kp")
+    si, drive, _ = convert_row(row, g, resolve_bases(prof, p), sample_time_s(p, GAINS["speed.kp"].loop))
+    assert ranges["speed.kp"][1] == pytest.approx(row.maximum * si / drive, rel=1e-12)
+    assert set(ranges) <= {"current.kp", "speed.kp", "speed.ki", "position.kp"}
+    assert notes
+    r = autotune(p.axis, g, tolerances_from_dict(p.tolerances, p.axis), gain_ranges=ranges, max_iterations=10)
+    if r.gains is not None:
+        assert r.gains.speed.pi.kp <= ranges["speed.kp"][1] * (1 + 1e-9)
