@@ -4,12 +4,16 @@
 
 Shots: the demo axis as it opens; a violated-margin state (speed Kp raised until
 the phase margin breaks its target); the axis model with a refused value; and,
-when the time simulation is present, a move that saturates the current.
+when the time simulation is present, a move that saturates the current; three gain sets
+compared (every plot overlaid, and the metrics table); and the first pages of the PDF
+report, rendered with ``pdftoppm`` (poppler) when it is installed.
 """
 
 from __future__ import annotations
 
 import os
+import shutil
+import subprocess
 import sys
 import tempfile
 from pathlib import Path
@@ -92,9 +96,49 @@ def render(out: Path) -> list[Path]:
         session.run_simulation()
         shots.append(_shot(app, window, out, "04_saturating_move.png"))
 
+    # Three gain sets side by side: every plot overlaid, then the metrics table.
+    if len(session.gain_sets) >= 3:
+        session.set_active_gain_set(session.gain_sets[0].name)
+        names = [g.name for g in session.gain_sets][:3]
+        session.set_compared(names)
+        session.set_baseline(names[0])
+        window.editors.setCurrentWidget(window.gain_sets_panel)
+        window.plots.setCurrentWidget(window.plots.loops_view)
+        session.flush()
+        session.run_simulation()
+        shots.append(_shot(app, window, out, "05_compare_loops.png"))
+        window.plots.setCurrentWidget(window.plots.comparison_table)
+        shots.append(_shot(app, window, out, "06_compare_table.png"))
+        session.set_compared(())
+        session.flush()
+
+    shots += report_pages(session, out)
+
     session.undo_stack.setClean()
     window.close()
     return shots
+
+
+def report_pages(session, out: Path) -> list[Path]:
+    """The PDF report of the active gain set: its first page (the sheet) and its last (the plots)
+    as PNG at 80 dpi, rendered by poppler's ``pdftoppm`` (skipped when it is not installed)."""
+    from core.export import resolve_profile
+
+    if shutil.which("pdftoppm") is None:
+        print("pdftoppm not found (poppler-utils): report pages not rendered")
+        return []
+    folder = Path(tempfile.mkdtemp())
+    pdf = session.write_sheet(session.config_sheet(session.active, resolve_profile("ti_ms_rpm")),
+                              folder / "report.pdf", "pdf")
+    subprocess.run(["pdftoppm", "-png", "-r", "80", str(pdf), str(folder / "page")], check=True)
+    pages = sorted(folder.glob("page*.png"))
+    written = []
+    for number, page in ((1, pages[0]), (len(pages), pages[-1])) if len(pages) > 1 else ((1, pages[0]),):
+        target = out / f"{6 + len(written) + 1:02d}_report_page{number}.png"
+        shutil.copyfile(page, target)
+        print(f"wrote {target}")
+        written.append(target)
+    return written
 
 
 def main(argv=None) -> int:

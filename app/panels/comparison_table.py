@@ -24,8 +24,8 @@ def _prefix(value: float, unit: str) -> tuple[float, str]:
         return 1e3, " ms"
     if unit == "Hz" and abs(value) >= 1000:
         return 1e-3, " kHz"
-    if unit in ("%", ""):
-        return 1.0, unit
+    if unit.startswith("%") or not unit:
+        return 1.0, unit[:1]
     return 1.0, f" {unit}"
 
 
@@ -59,6 +59,7 @@ class ComparisonTable(QWidget):
         self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
         self.table.setSelectionMode(QTableWidget.SelectionMode.NoSelection)
         self.table.verticalHeader().setDefaultSectionSize(20)
+        self.table.verticalHeader().setVisible(False)
         self.table.verticalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Fixed)
         layout.addWidget(self.table, 1)
         self.comparison = None
@@ -89,11 +90,11 @@ class ComparisonTable(QWidget):
         shade = QBrush(QColor(PAPER))
         group = None
         for r, row in enumerate(rows):
-            unit = f" [{row.unit}]" if row.unit else ""
+            unit = f" [{row.unit}]" if row.unit else ""  # in the tooltip: the cells carry their own units
             arrow = "↑" if row.better == "higher" else "↓"
             title = GROUP_TITLES.get(row.group, row.group)
-            label = QTableWidgetItem(f"{title if row.group != group else ''}  {row.label}{unit} {arrow}".strip())
-            label.setToolTip(f"{title}: {row.label} — {row.better} is better")
+            label = QTableWidgetItem(f"{title if row.group != group else ''}  {row.label} {arrow}".strip())
+            label.setToolTip(f"{title}: {row.label}{unit} — {row.better} is better")
             label.setForeground(QBrush(QColor(MUTED)) if row.group == group else label.foreground())
             table.setItem(r, 0, label)
             striped = list(GROUP_TITLES).index(row.group) % 2 == 1 if row.group in GROUP_TITLES else False

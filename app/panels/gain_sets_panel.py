@@ -15,6 +15,7 @@ from PySide6.QtWidgets import (QComboBox, QGridLayout, QHBoxLayout, QLabel, QLin
 from app import dialogs
 from app.session import Session
 from app.signals import signals_blocked
+from app.theme import PAPER
 
 NAME_ROLE = Qt.ItemDataRole.UserRole + 1
 
@@ -42,6 +43,10 @@ class GainSetsPanel(QWidget):
         self.list.setObjectName("gain_sets_list")
         self.list.setWordWrap(True)
         self.list.setMinimumHeight(150)
+        self.list.setAlternatingRowColors(True)
+        self.list.setSpacing(1)
+        self.list.setStyleSheet(f"QListWidget {{ alternate-background-color: {PAPER}; }}"
+                                f"QListWidget::item {{ padding: 3px 2px; }}")
         self.list.itemChanged.connect(self._item_changed)
         self.list.itemDoubleClicked.connect(lambda item: self.make_active())
         self.list.currentItemChanged.connect(lambda *_: self._show_selected())
