@@ -113,6 +113,16 @@ def render(out: Path) -> list[Path]:
         session.flush()
 
     shots += report_pages(session, out)
+    # The robustness view after a corners sweep of the active set (run in its worker, waited for here).
+    view = window.robustness
+    window.plots.setCurrentWidget(view)
+    view.mode_box.setCurrentText("corners")
+    view.loop_box.setCurrentText("speed")
+    if view.start_sweep():
+        while view.busy:
+            view.job.wait(50)
+            app.processEvents()
+    shots.append(_shot(app, window, out, "09_robustness.png", keep_status=True))
 
     session.undo_stack.setClean()
     window.close()

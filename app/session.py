@@ -75,6 +75,7 @@ class ModelState:
     active: str
     targets: tuple[tuple[str, float], ...]
     tuning: tuple[tuple[str, object], ...]
+    tolerances: tuple[tuple[str, object], ...] = ()
 
     @property
     def gains(self) -> GainSet:
@@ -210,7 +211,8 @@ class Session(QObject):
         """The current state as a preset (what Save writes)."""
         s = self._state
         return replace(self._preset, axis=s.axis, constants_check=s.constants, gain_sets=s.gain_sets,
-                       active=s.active, targets=dict(s.targets), tuning=dict(s.tuning))
+                       active=s.active, targets=dict(s.targets), tuning=dict(s.tuning),
+                       tolerances=dict(s.tolerances))
 
     @property
     def dirty(self) -> bool:
@@ -239,7 +241,8 @@ class Session(QObject):
         self.path = Path(path) if path is not None else None
         self._state = ModelState(preset.axis, preset.constants_check, gain_sets,
                                  preset.active or gain_sets[0].name,
-                                 tuple(preset.targets.items()), tuple(preset.tuning.items()))
+                                 tuple(preset.targets.items()), tuple(preset.tuning.items()),
+                                 tuple(preset.tolerances.items()))
         moves = [s.get("name", "") for s in preset.scenarios if s.get("kind") == "move"]
         self.scenario_name = moves[-1] if moves else ""
         self._reset_comparison()
@@ -506,6 +509,56 @@ class Session(QObject):
             if self._sim is not None:
                 self._sim_timer.start()
 
+
+    # --- robustness (issue 6): tolerances, auto-tuned sets, resonance notches ----------------------
+    @property
+    def tolerances_table(self) -> dict:
+        return dict(self._state.tolerances)
+
+    def tolerances(self):
+        """The tolerances as :class:`core.tolerances.Tolerances` (InputError when the table is refused)."""
+        from core.tolerances import tolerances_from_dict
+
+        return tolerances_from_dict(self.tolerances_table, self.axis)
+
+    def set_tolerance(self, name: str, low_pct: float, high_pct: float) -> str | None:
+        """One tolerance as a low/high % deviation (0/0 removes it), one undo step; the reason when refused."""
+        from core.tolerances import tolerances_from_dict
+
+        table = self.tolerances_table
+        if low_pct == 0 and high_pct == 0:
+            table.pop(name, None)
+        else:
+            table[name] = [f"{low_pct:+g} %", f"{high_pct:+g} %"]
+        try:
+            tolerances_from_dict(table, self.axis)
+        except InputError as err:
+            return self._refuse(err)
+        self._push(f"Tolerance of {name}", replace(self._state, tolerances=tuple(table.items())))
+        return None
+
+    def add_tuned_gain_set(self, gains: GainSet) -> str | None:
+        """An auto-tuned set as a new, active gain set (core.gainsets add + replace), one undo step."""
+        taken = {g.name for g in self.gain_sets}
+        name, k = gains.name, 2
+        while name in taken:
+            name, k = f"{gains.name} {k}", k + 1
+
+        def edit(p: Preset) -> Preset:
+            p = core_gainsets.add_gain_set(p, name, gains.note)
+            return core_gainsets.replace_gain_set(p, gains.renamed(name, gains.note))
+
+        return self._edit_gain_sets(f"Auto-tuned gain set {name}", edit)
+
+    def add_speed_notches(self, notches: tuple) -> str | None:
+        """Append proposed notches to the active set's speed feedback, one undo step."""
+        g = self.gains
+        try:
+            new = replace(g, speed=replace(g.speed, notches=g.speed.notches + tuple(notches)))
+        except InputError as err:
+            return self._refuse(err)
+        self._push("Add resonance notch", self._set_active_gains(new))
+        return None
 
     # --- gain sets, comparison and sheets ---------------------------------------------------
     def _edit_gain_sets(self, label: str, edit) -> str | None:

@@ -21,6 +21,7 @@ from app.panels.gain_sets_panel import GainSetsPanel
 from app.panels.gains_panel import GainsPanel
 from app.panels.targets_panel import TargetsPanel
 from app.plots.plots_panel import PlotsPanel
+from app.plots.robustness_view import RobustnessView
 from app.recent import recent_files, remember
 from app.safety import ABOUT_TEXT, caution_needed, show_caution
 from app.session import Session
@@ -51,6 +52,8 @@ class MainWindow(QMainWindow):
         self.axis_panel = AxisPanel(session)
         self.targets_panel = TargetsPanel(session)
         self.plots = PlotsPanel(session)
+        self.robustness = RobustnessView(session)
+        self.plots.addTab(self.robustness, "Robustness")
         self.flags_panel = FlagsPanel(session)
         self.editors = QTabWidget()
         self.editors.setObjectName("editors")
@@ -230,6 +233,8 @@ class MainWindow(QMainWindow):
 
     def closeEvent(self, event):  # noqa: N802 - Qt's name
         if self._may_discard():
+            self.robustness.cancel()       # a running sweep or auto-tune stops; nothing is applied
+            self.robustness.wait(10000)
             event.accept()
         else:
             event.ignore()
