@@ -112,10 +112,12 @@ def _stiffness_rows(tolerances: Tolerances, n: int = 9) -> np.ndarray:
 def resonance_margins_db(axis: Axis, gains: GainSet, rows: np.ndarray) -> np.ndarray:
     """Gain margin at the resonance per variant row, dB (see module docstring)."""
     va = VariantAxis(axis, rows)
-    fr = va.resonance_hz
-    f = np.logspace(math.log10(0.8 * fr.min()), math.log10(1.25 * fr.max()), 400)
+    fr = np.broadcast_to(np.asarray(va.resonance_hz, float).reshape(-1, 1), (len(rows), 1))
+    # Each row over its own band round its own resonance, so a row's margin does not
+    # depend on which other rows are evaluated with it.
+    f = fr * np.logspace(math.log10(0.8), math.log10(1.25), 400)[None, :]
     model = CascadeModel(va, gains, VariantAlgebra(2j * math.pi * f))
-    mag = np.abs(np.broadcast_to(model.speed_open, (len(rows), len(f))))
+    mag = np.abs(np.broadcast_to(model.speed_open, f.shape))
     return -20.0 * np.log10(mag.max(axis=1))
 
 
