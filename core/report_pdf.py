@@ -39,6 +39,15 @@ def _decimate(x: np.ndarray, y: np.ndarray, n: int = 400) -> tuple[np.ndarray, n
     return x[::step], y[::step]
 
 
+def _nice_ticks(low: float, high: float, count: int = 5) -> np.ndarray:
+    """Round tick values (1, 2 or 5 times a power of ten apart) covering [low, high]."""
+    span = max(high - low, 1e-12)
+    raw = span / max(count - 1, 1)
+    power = 10.0 ** math.floor(math.log10(raw))
+    step = next(m * power for m in (1.0, 2.0, 5.0, 10.0) if m * power >= raw)
+    return np.arange(math.ceil(low / step) * step, high + 0.5 * step, step)
+
+
 def _plot(title: str, series: list[tuple[str, np.ndarray, np.ndarray]], x_label: str, y_label: str,
           log_x: bool = False, width: float = 170 * mm, height: float = 52 * mm,
           y_range: tuple[float, float] | None = None) -> Drawing:
@@ -67,16 +76,17 @@ def _plot(title: str, series: list[tuple[str, np.ndarray, np.ndarray]], x_label:
 
     d.add(Rect(left, bottom, right - left, top - bottom, strokeColor=colors.black, fillColor=None, strokeWidth=0.5))
     grey = colors.HexColor("#c8c8c8")
-    xticks = np.arange(x0, x1 + 0.5) if log_x else np.linspace(x0, x1, 6)
-    for t in xticks:
+    xticks = np.arange(x0, x1 + 0.5) if log_x else _nice_ticks(x0, x1, 6)
+    for t in xticks[(xticks >= x0) & (xticks <= x1)]:
         d.add(Line(px(t), bottom, px(t), top, strokeColor=grey, strokeWidth=0.3))
         text = f"{10 ** t:g}" if log_x else f"{t:.3g}"
         d.add(String(px(t), bottom - 3.5 * mm, text, fontSize=6, textAnchor="middle"))
-    for t in np.linspace(y0 + pad, y1 - pad, 5):
+    yticks = _nice_ticks(y0, y1, 5)
+    for t in yticks[(yticks >= y0) & (yticks <= y1)]:
         d.add(Line(left, py(t), right, py(t), strokeColor=grey, strokeWidth=0.3))
-        d.add(String(left - 1 * mm, py(t) - 2, f"{t:.3g}", fontSize=6, textAnchor="end"))
+        d.add(String(left - 1 * mm, py(t) - 2, f"{t:.4g}", fontSize=6, textAnchor="end"))
     d.add(String((left + right) / 2, 1 * mm, x_label, fontSize=6.5, textAnchor="middle"))
-    d.add(String(2, (bottom + top) / 2, y_label, fontSize=6.5))
+    d.add(String(left, top + 1.2 * mm, y_label, fontSize=6.5, textAnchor="end"))
     for k, ((name, _, y), a, m) in enumerate(zip(series, xs, ok)):
         colour, dash = LINE_STYLES.get(name, (colors.black, None))
         points = [c for xv, yv in zip(a[m], y[m]) for c in (px(float(xv)), py(float(yv)))]
