@@ -65,6 +65,7 @@ import os
 import tempfile
 import time
 from dataclasses import dataclass, fields
+from functools import lru_cache
 
 import numpy as np
 import scipy.linalg
@@ -135,6 +136,19 @@ def discretise_zoh(a: np.ndarray, b: np.ndarray, sample_s: float) -> tuple[np.nd
     m[:nx, nx:] = b
     e = scipy.linalg.expm(m * sample_s)
     return np.ascontiguousarray(e[:nx, :nx]), np.ascontiguousarray(e[:nx, nx:])
+
+
+@lru_cache(maxsize=16)
+def _discrete_plant(axis: Axis) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(A, B, Ad, Bd): the plant and its discretisation at the current-loop period.
+
+    The axis, not the gains, sets them, so a slider move reuses them (read-only arrays).
+    """
+    a, b = plant_matrices(axis)
+    ad, bd = discretise_zoh(a, b, 1.0 / axis.drive.current_rate_hz)
+    for m in (a, b, ad, bd):
+        m.setflags(write=False)
+    return a, b, ad, bd
 
 
 # --------------------------------------------------------------------------- filters
@@ -356,8 +370,7 @@ def _prepare(axis: Axis, gains: GainSet, sc: Scenario) -> _Prepared:
     for k, nt in enumerate(gains.speed.notches):
         _check_filter(f"speed.notches[{k}].centre", nt.centre_hz, 1.0 / tw)
 
-    a, b = plant_matrices(axis)
-    ad, bd = discretise_zoh(a, b, tc)
+    a, b, ad, bd = _discrete_plant(axis)
 
     # delays in current-loop samples (see the module docstring)
     d_cur, d_spd, d_pos = drive.loop_delays_s()
