@@ -31,6 +31,8 @@ POINTS_PER_DECADE = 80
 _REFINE_STEPS = 3
 _REFINE_MAX_STEPS = 30
 _DIP_ROUNDS = 3
+_CONVERGED = 1e-10
+"""|residual| (log-magnitude or rad) below which a crossing counts as found."""
 
 
 @dataclass(frozen=True)
@@ -151,6 +153,27 @@ def _residual(kind: str, ol, cl, ref):
     return np.log(np.abs(cl)) - ref          # bandwidth: |T| against |T0|/sqrt(2)
 
 
+def falsi_point(a, b, fa, fb, prev, fprev) -> np.ndarray:
+    """Next point of bracketed root searches, arrays over brackets.
+
+    The secant through the two latest points (``prev``, ``b``) when it falls strictly
+    inside the bracket [a, b] (superlinear near the root), else the regula-falsi point
+    of the bracket with the Illinois-weighted ``fa``.
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        falsi = np.where(fb != fa, b - fb * (b - a) / (fb - fa), 0.5 * (a + b))
+        secant = b - fb * (b - prev) / (fb - fprev)
+    inside = np.isfinite(secant) & (secant > np.minimum(a, b)) & (secant < np.maximum(a, b)) & (prev != b)
+    return np.where(inside, secant, falsi)
+
+
+def falsi_update(a, b, fa, fb, x, fx):
+    """(a, b, fa, fb, prev, fprev) after evaluating ``fx`` at ``x`` (Illinois: halve the
+    retained end's residual when the same end is kept twice)."""
+    same = np.sign(fx) == np.sign(fb)
+    return (np.where(same, a, b), x, np.where(same, fa * 0.5, fb), fx, b, fb)
+
+
 class _Crossings:
     """Illinois (modified regula falsi) iterations on log(w) for many brackets at once.
 
@@ -163,7 +186,7 @@ class _Crossings:
     def __init__(self):
         self.loop = np.zeros(0, int)
         self.kind = np.zeros(0, "<U5")
-        self.a = self.b = self.fa = self.fb = self.ref = self.x = np.zeros(0)
+        self.a = self.b = self.fa = self.fb = self.ref = self.x = self.prev = self.fprev = np.zeros(0)
         self.steps = np.zeros(0, int)
         self.values = np.zeros((3, 0), complex)
         self.active = np.zeros(0, int)
@@ -182,6 +205,8 @@ class _Crossings:
         self.fb = np.concatenate([self.fb, np.array(col[5], float)])
         self.ref = np.concatenate([self.ref, np.array(col[6], float)])
         self.x = np.concatenate([self.x, self.b[n0:]])
+        self.prev = np.concatenate([self.prev, self.a[n0:]])
+        self.fprev = np.concatenate([self.fprev, self.fa[n0:]])
         self.steps = np.concatenate([self.steps, np.zeros(len(brackets), int)])
         self.values = np.concatenate([self.values, np.zeros((3, len(brackets)), complex)], axis=1)
         self.active = np.concatenate([self.active, np.arange(n0, len(self.loop))])
@@ -189,8 +214,7 @@ class _Crossings:
     def proposal(self) -> np.ndarray:
         """The next point of every active bracket, log(rad/s)."""
         i = self.active
-        a, b, fa, fb = self.a[i], self.b[i], self.fa[i], self.fb[i]
-        return np.where(fb != fa, b - fb * (b - a) / (fb - fa), 0.5 * (a + b))
+        return falsi_point(self.a[i], self.b[i], self.fa[i], self.fb[i], self.prev[i], self.fprev[i])
 
     def update(self, xa: np.ndarray, ol: np.ndarray, cl: np.ndarray, all_ol: np.ndarray) -> None:
         """Take the loops' values at the proposed points (``ol``/``cl`` of each bracket's own
@@ -202,14 +226,11 @@ class _Crossings:
                           np.where(kind == "phase", np.angle(-ol), np.log(np.abs(cl)) - self.ref[i]))
         self.values[:, i] = all_ol
         self.x[i] = xa
-        same = np.sign(fx) == np.sign(self.fb[i])
-        # Illinois: halve the retained end's residual when the same end is kept twice.
-        self.fa[i] = np.where(same, self.fa[i] * 0.5, self.fb[i])
-        self.a[i] = np.where(same, self.a[i], self.b[i])
-        self.b[i], self.fb[i] = xa, fx
+        (self.a[i], self.b[i], self.fa[i], self.fb[i],
+         self.prev[i], self.fprev[i]) = falsi_update(self.a[i], self.b[i], self.fa[i], self.fb[i], xa, fx)
         self.steps[i] += 1
         keep = (self.steps[i] < _REFINE_STEPS) | (
-            (np.abs(fx) > 1e-8) & (np.abs(self.b[i] - self.a[i]) > 1e-12) & (self.steps[i] < _REFINE_MAX_STEPS))
+            (np.abs(fx) > _CONVERGED) & (np.abs(self.b[i] - self.a[i]) > 1e-12) & (self.steps[i] < _REFINE_MAX_STEPS))
         self.active = i[keep]
 
 

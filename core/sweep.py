@@ -46,7 +46,8 @@ from core.gains import GainSet
 from core.loops import CascadeModel, FrequencyAlgebra
 # The margin rules are core.margins' own: its constants and row-wise helpers are used as they are,
 # so the vectorised sweep stays the scalar analysis applied to many variants.
-from core.margins import _DIP_ROUNDS, _REFINE_MAX_STEPS, _REFINE_STEPS, LOOPS, loop_margins
+from core.margins import _CONVERGED as M_CONVERGED
+from core.margins import _DIP_ROUNDS, _REFINE_MAX_STEPS, _REFINE_STEPS, LOOPS, falsi_point, falsi_update, loop_margins
 from core.margins import _narrow as _narrow_rows
 from core.margins import _parabola_vertex as _vertex_rows
 from core.responses import response_horizon_s
@@ -61,7 +62,7 @@ CHUNK_BYTES = 40e6
 Small enough that a chunk's working set stays near the processor caches: measured on the
 bench (10,000 variants), 40 MB chunks ran ~20 % faster than 160 MB ones and ~15 % faster than 20 MB."""
 _LIVE_ARRAYS = 60          # complex (V, N) arrays alive at once inside one CascadeModel evaluation
-_CONVERGED = 1e-8          # |residual| at which core.margins stops refining a crossing
+_CONVERGED = M_CONVERGED      # |residual| at which core.margins stops refining a crossing
 _BRACKET_BLOCK = 16384     # brackets refined per model evaluation (cache-sized blocks)
 RESPONSE_SAMPLES = 1024    # FFT length of the swept step responses (half of the single analysis')
 
@@ -479,25 +480,23 @@ def _finish(vaxis: VariantAxis, gains: GainSet, stages: list) -> dict:
     turns = [cat([st.turns[li] for st in stages]) for li in range(3)]
     dips = [(cat([st.dips[li][0] for st in stages]), cat([st.dips[li][1] for st in stages])) for li in range(3)]
 
-    # Illinois on log(w) for every bracket of every variant at once (as core.margins._refine:
+    # Bracketed secant / Illinois steps on log(w) for every bracket of every variant at once (as core.margins:
     # a few steps for all, then on only with the brackets not yet converged).
     x, at = b.copy(), np.zeros(len(bv), complex)
+    prev, fprev = a.copy(), fa.copy()
     active = np.arange(len(bv))
     for step in range(_REFINE_MAX_STEPS):
         if len(active) == 0:
             break
         aa, ba, faa, fba = a[active], b[active], fa[active], fb[active]
-        xa = np.where(fba != faa, ba - fba * (ba - aa) / (fba - faa), 0.5 * (aa + ba))
+        xa = falsi_point(aa, ba, faa, fba, prev[active], fprev[active])
         la, ka = bl[active], bk[active]
         ol_b, cl_b = _evaluate_brackets(vaxis, gains, bv[active], la, ka, np.exp(xa))
         fxa = np.where(ka == 0, np.log(np.abs(ol_b)),
                        np.where(ka == 1, np.angle(-ol_b), np.log(np.abs(cl_b)) - ref[active]))
         x[active], at[active] = xa, ol_b
-        same = np.sign(fxa) == np.sign(fba)
-        # Illinois: halve the retained end's residual when the same end is kept twice.
-        fa[active] = np.where(same, faa * 0.5, fba)
-        a[active] = np.where(same, aa, ba)
-        b[active], fb[active] = xa, fxa
+        a[active], b[active], fa[active], fb[active], prev[active], fprev[active] = falsi_update(
+            aa, ba, faa, fba, xa, fxa)
         if step + 1 >= _REFINE_STEPS:
             active = active[np.abs(fxa) > _CONVERGED]
     w_ref = np.exp(x)
