@@ -12,12 +12,11 @@ from dataclasses import dataclass
 import numpy as np
 
 from core.axis import Axis
-from core.flags import Flag, Targets, margin_flags, quantisation_flags, step_flags
+from core.flags import Targets, margin_flags, quantisation_flags, step_flags
 from core.gains import GainSet
 from core.margins import LOOPS, FrequencyData, LoopMargins, loop_margins
 from core.motor import ConstantsCheck
-from core.responses import (LoadStepResponse, StepResponse, position_and_load_step, response_horizon_s,
-                            step_response)
+from core.responses import LoadStepResponse, position_and_load_step, response_horizon_s, step_response
 
 
 @dataclass(frozen=True)

@@ -40,7 +40,6 @@ import json
 import math
 import os
 import re
-import tempfile
 import tomllib
 from dataclasses import dataclass, replace
 from decimal import Decimal
@@ -52,6 +51,7 @@ import pint
 import core
 from core.analysis import Analysis, analyse, analysis_summary
 from core.errors import InputError
+from core.files import atomic_write as _atomic_write
 from core.safety import CAUTION  # the caution every export carries
 from core.flags import Flag, targets_from_dict
 from core.gains import PI, CurrentGains, GainSet, Notch, PositionGains, SpeedGains
@@ -732,29 +732,8 @@ def sheet(preset: Preset, gain_set_name: str, profile: Profile, now: _dt.datetim
 # --- atomic writing ----------------------------------------------------------------------
 
 def atomic_write(path: str | os.PathLike, write: Callable[[Path], None]) -> Path:
-    """Call ``write(tmp)`` on a temporary file beside ``path``, then move it over ``path``.
-
-    On any failure the temporary file is removed and an existing ``path`` is left
-    as it was. Errors of the file system become :class:`InputError` naming the path.
-    """
-    path = Path(path)
-    if path.is_dir():
-        raise InputError("-o", str(path), "a file name, not a folder")
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    except OSError as err:
-        raise InputError("-o", str(path), f"a file in a writable folder ({err.strerror or err})") from None
-    os.close(fd)
-    try:
-        write(Path(tmp))
-        os.replace(tmp, path)
-    except OSError as err:
-        Path(tmp).unlink(missing_ok=True)
-        raise InputError("-o", str(path), f"a writable file ({err.strerror or err})") from None
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
+    """:func:`core.files.atomic_write` with errors naming the ``-o`` option."""
+    return _atomic_write(path, write, "-o")
 
 
 def _write_text(path, text: str) -> Path:

@@ -15,7 +15,7 @@ parallel ``Kp + Ki/s`` with ``Ki = Kp/Ti``; :func:`pi_from_series` and
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from typing import Literal
 
 from core.errors import InputError, require_nonnegative, require_positive, require_range

@@ -396,7 +396,7 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
     ols = [o[:n] for o in ols_all]
     cls = [c[:n] for c in cls_all]
 
-    brackets, owners = [], []
+    brackets = []
     for li in range(3):
         ol, cl = ols[li], cls[li]
         r_gain = np.log(np.abs(ol))

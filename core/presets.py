@@ -21,7 +21,6 @@ from __future__ import annotations
 import math
 import os
 import re
-import tempfile
 import tomllib
 from dataclasses import dataclass, field, replace
 from importlib import resources
@@ -33,6 +32,7 @@ import tomli_w
 from core.axis import Axis
 from core.drive import Drive
 from core.errors import InputError
+from core.files import atomic_write
 from core.gains import PI, CurrentGains, GainSet, Notch, PositionGains, SpeedGains
 from core.load import Load
 from core.motor import ConstantsCheck, current_to_model, motor_from_datasheet
@@ -629,19 +629,5 @@ def save_preset(preset: Preset, path: str | os.PathLike) -> Path:
     Path
         The path written.
     """
-    path = Path(path)
     text = dumps_preset(preset)
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    except OSError as err:
-        raise InputError("file", str(path), f"a writable folder ({err.strerror or err})") from None
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write(text)
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(tmp, path)
-    except OSError as err:
-        Path(tmp).unlink(missing_ok=True)
-        raise InputError("file", str(path), f"a writable file ({err.strerror or err})") from None
-    return path
+    return atomic_write(path, lambda tmp: tmp.write_text(text, encoding="utf-8", newline="\n"), "file")

@@ -62,7 +62,6 @@ from __future__ import annotations
 import csv
 import math
 import os
-import tempfile
 import time
 from dataclasses import dataclass, fields
 from functools import lru_cache
@@ -73,6 +72,7 @@ import scipy.linalg
 from core import sim_kernel as K
 from core.axis import Axis
 from core.errors import InputError
+from core.files import atomic_write
 from core.gains import GainSet
 from core.scenario import MAX_SAMPLES, Scenario, scenario_from_dict
 
@@ -759,20 +759,15 @@ def write_csv(result: SimulationResult, path) -> None:
     folder, then moved over ``path`` with os.replace.
     """
     path = os.fspath(path)
-    folder = os.path.dirname(os.path.abspath(path))
     names = list(TRACE_UNITS)
     header = [f"{k} [{v.replace('load', result.load_unit)}]" for k, v in TRACE_UNITS.items()]
     cols = np.column_stack([getattr(result, k).astype(float) for k in names]) if len(result.time_s) else \
         np.zeros((0, len(names)))
-    fd, tmp = tempfile.mkstemp(prefix=".sim-", suffix=".csv", dir=folder)
-    try:
-        with os.fdopen(fd, "w", newline="") as fh:
+    def write(tmp):
+        with open(tmp, "w", newline="") as fh:
             w = csv.writer(fh)
             w.writerow(header)
             for row in cols:
                 w.writerow([f"{x:.9g}" for x in row])
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+
+    atomic_write(path, write, "--csv")

@@ -13,7 +13,7 @@ Rules (each cited where it is used):
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 from core.axis import Axis
 from core.errors import InputError, require_positive, require_range
