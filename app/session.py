@@ -244,7 +244,7 @@ class Session(QObject):
                                  tuple(preset.targets.items()), tuple(preset.tuning.items()),
                                  tuple(preset.tolerances.items()))
         moves = [s.get("name", "") for s in preset.scenarios if s.get("kind") == "move"]
-        self.scenario_name = moves[-1] if moves else ""
+        self.scenario_name = moves[0] if moves else ""   # the first (gentle) move: a calm first look
         self._reset_comparison()
         self.undo_stack.clear()
         self.undo_stack.setClean()
