@@ -95,6 +95,11 @@ def _analyse(axis: Axis, gains: GainSet, targets: Targets, constants: ConstantsC
     margins, freq = loop_margins(axis, gains)
     integral = {"current": gains.current.pi.integral_time_s, "speed": gains.speed.pi.integral_time_s,
                 "position": gains.position.pi.integral_time_s}
+    # A current PI whose zero cancels the armature pole (Ti ~ L/R) leaves no slow tail
+    # in its step, so its trace need not be stretched to show one.
+    tau_e = axis.electrical_time_constant_s
+    if abs(integral["current"] - tau_e) <= 0.2 * tau_e:
+        integral["current"] = math.inf
     steps = {}
     fallback = 10.0 * axis.mechanical_time_constant_s
     for loop in ("current", "speed"):
