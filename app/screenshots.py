@@ -75,7 +75,8 @@ def render(out: Path) -> list[Path]:
     session.undo_stack.undo()
 
     # The axis model with a value the core refuses (kept as typed, reason beside it).
-    window.editors.setCurrentIndex(1)
+    window.editors.setCurrentIndex(next(k for k in range(window.editors.count())
+                                        if window.editors.tabText(k) == "Axis model"))
     window.plots.setCurrentWidget(window.plots.disturbance_view)
     edit = window.axis_panel.field("motor", "inductance_h")
     edit.setText("-5 mH")

@@ -336,11 +336,12 @@ class Session(QObject):
             return
         self._push(f"Use gain set {name}", replace(self._state, active=name))
 
-    def set_axis_value(self, part: str, attr: str, value: object) -> str | None:
+    def set_axis_value(self, part: str, attr: str, value: object, typed: str | None = None) -> str | None:
         """Change one field of the motor, load or drive; returns the reason when refused.
 
         The model is only replaced when the new part constructs cleanly, so a bad
-        value leaves the last good model in place.
+        value leaves the last good model in place. ``typed`` is the text as the user
+        wrote it ("-5 mH"), quoted in the reason instead of the SI number.
         """
         axis = self.axis
         old_part = getattr(axis, part)
@@ -351,9 +352,10 @@ class Session(QObject):
             new_axis = replace(axis, **{part: new_part})
             _ = new_axis.total_inertia_kgm2, new_axis.mechanical_time_constant_s  # reflected values must exist
         except InputError as err:
-            return self._refuse(err)
+            return self._refuse(err if typed is None else InputError(err.field, typed, err.expected))
         except (ZeroDivisionError, OverflowError, ValueError, TypeError) as err:
-            return self._refuse(InputError(f"{part}.{attr}", value, f"a value the model can use ({err})"))
+            return self._refuse(InputError(f"{part}.{attr}", value if typed is None else typed,
+                                           f"a value the model can use ({err})"))
         constants = self._state.constants
         if part == "motor" and attr in ("torque_constant_nm_per_a", "back_emf_v_s_per_rad", "kind"):
             constants = _constants_of(new_part)

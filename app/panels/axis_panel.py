@@ -179,7 +179,7 @@ class AxisPanel(QWidget):
         self.rows[f"{part}.{attr}"] = row
 
     def _set(self, part: str, attr: str, value, row: _Row | None) -> None:
-        reason = self.session.set_axis_value(part, attr, value)
+        reason = self.session.set_axis_value(part, attr, value, row.edit.text() if row is not None else None)
         if reason and row is not None:
             row.edit.set_invalid(reason)
         elif reason:
