@@ -4,7 +4,7 @@ and the move simulation when the core has it. Items are created once and fed wit
 from __future__ import annotations
 
 import pyqtgraph as pg
-from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QTabWidget, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QComboBox, QGraphicsScene, QHBoxLayout, QLabel, QTabWidget, QVBoxLayout, QWidget
 
 from app.flag_kinds import flag_kind
 from app.panels.comparison_table import ComparisonTable
@@ -25,6 +25,9 @@ def _layout_widget(name: str) -> pg.GraphicsLayoutWidget:
     w.ci.setContentsMargins(4, 4, 4, 4)
     w.ci.setSpacing(6)
     # Not DontSavePainterState: pyqtgraph items rely on Qt restoring the painter (blank plots otherwise).
+    # Curves change shape on every slider tick; keeping Qt's BSP item index up to date
+    # then costs more than it saves on a scene of a few hundred items.
+    w.scene().setItemIndexMethod(QGraphicsScene.ItemIndexMethod.NoIndex)
     return w
 
 
