@@ -57,6 +57,16 @@ def _gain_rows(gains) -> list[tuple[str, str]]:
     ]
 
 
+def print_flags(flags, out, when_none: str) -> None:
+    """Flags as "[severity] loop: message" lines, or ``when_none`` when there are none."""
+    if not flags:
+        print(when_none, file=out)
+        return
+    print("flags:", file=out)
+    for f in flags:
+        print(f"  [{f.severity}] {f.loop}: {f.message}", file=out)
+
+
 def _print_check(result, out) -> None:
     print(f"{'loop':9} {'crossover':>11} {'PM':>9} {'GM':>9} {'Ms':>6} {'bandwidth':>11} {'overshoot':>10}  stable",
           file=out)
@@ -68,12 +78,7 @@ def _print_check(result, out) -> None:
     ls = result.load_step
     print(f"load step {ls.load_torque_nm:.3g} N*m at the motor: speed dip {_fmt(ls.speed_dip_rad_s, 'rad/s')}, "
           f"position error {_fmt(ls.position_error_rad, 'rad')}, recovery {_fmt(ls.recovery_time_s, 's')}", file=out)
-    if result.flags:
-        print("flags:", file=out)
-        for f in result.flags:
-            print(f"  [{f.severity}] {f.loop}: {f.message}", file=out)
-    else:
-        print("all checks pass", file=out)
+    print_flags(result.flags, out, "all checks pass")
 
 
 def cmd_check(args, out) -> int:

@@ -59,6 +59,7 @@ def _num(x, unit="", digits=4):
 
 def cmd_sweep(args, out) -> int:
     """Sweep the preset's tolerances: worst cases, ranking, flags."""
+    from app.cli import print_flags
     from core.safety import CAUTION
     from core.sweep import SweepSettings, sweep, sweep_summary
 
@@ -85,12 +86,7 @@ def cmd_sweep(args, out) -> int:
     for r in result.ranking:
         print(f"  {r.parameter:13} x{r.low_factor:.3g}..x{r.high_factor:.3g}: {r.worst_loop} loop loses "
               f"{r.phase_margin_loss_deg[r.worst_loop]:.3g} deg of phase margin", file=out)
-    if result.flags:
-        print("flags:", file=out)
-        for f in result.flags:
-            print(f"  [{f.severity}] {f.loop}: {f.message}", file=out)
-    else:
-        print("all variants pass", file=out)
+    print_flags(result.flags, out, "all variants pass")
     print(f"\n{CAUTION}", file=out)
     return 0
 

@@ -92,16 +92,30 @@ def frequency_grid(axis: Axis, gains: GainSet) -> np.ndarray:
     return _grid(axis, gains.position.kp_per_s).copy()
 
 
-@lru_cache(maxsize=32)
-def _grid(axis: Axis, position_kp_per_s: float) -> np.ndarray:
+def grid_span_hz(axis: Axis, position_kp_per_s: float) -> tuple[float, float]:
+    """(lowest, highest) frequency the loops are looked at over, Hz.
+
+    Up to the current loop's Nyquist frequency (the continuous model means nothing
+    beyond it); down to well below the position loop's gain and the mechanical corner.
+    """
     f_hi = 0.5 * axis.drive.current_rate_hz
     mech_corner = axis.total_viscous_nm_s_per_rad / axis.total_inertia_kgm2 / (2 * math.pi)
     f_lo = min(0.01 * position_kp_per_s / (2 * math.pi), 1e-4 * f_hi)
     if mech_corner > 0:
         f_lo = min(f_lo, 0.3 * mech_corner)
-    f_lo = max(f_lo, 1e-7 * f_hi)
-    n = int(math.ceil(POINTS_PER_DECADE * math.log10(f_hi / f_lo))) + 1
-    f = np.logspace(math.log10(f_lo), math.log10(f_hi), n)
+    return max(f_lo, 1e-7 * f_hi), f_hi
+
+
+def log_grid_hz(f_lo: float, f_hi: float, points_per_decade: int) -> np.ndarray:
+    """Log-spaced frequencies from ``f_lo`` to ``f_hi``, Hz, both ends included."""
+    n = int(math.ceil(points_per_decade * math.log10(f_hi / f_lo))) + 1
+    return np.logspace(math.log10(f_lo), math.log10(f_hi), n)
+
+
+@lru_cache(maxsize=32)
+def _grid(axis: Axis, position_kp_per_s: float) -> np.ndarray:
+    f_lo, f_hi = grid_span_hz(axis, position_kp_per_s)
+    f = log_grid_hz(f_lo, f_hi, POINTS_PER_DECADE)
     extra = []
     for fr in (axis.resonance_hz, axis.antiresonance_hz):
         if math.isfinite(fr) and f_lo < fr < f_hi:

@@ -47,7 +47,8 @@ from core.loops import CascadeModel, FrequencyAlgebra
 # The margin rules are core.margins' own: its constants and row-wise helpers are used as they are,
 # so the vectorised sweep stays the scalar analysis applied to many variants.
 from core.margins import _CONVERGED as M_CONVERGED
-from core.margins import _DIP_ROUNDS, _REFINE_MAX_STEPS, _REFINE_STEPS, LOOPS, falsi_point, falsi_update, loop_margins
+from core.margins import (_DIP_ROUNDS, _REFINE_MAX_STEPS, _REFINE_STEPS, LOOPS, falsi_point, falsi_update,
+                          grid_span_hz, log_grid_hz, loop_margins)
 from core.margins import _narrow as _narrow_rows
 from core.margins import _parabola_vertex as _vertex_rows
 from core.responses import response_horizon_s
@@ -267,22 +268,15 @@ def sweep_grid(axis: Axis, position_kp_per_s: float, factors: np.ndarray | None 
     resonance can reach (0.85 x the lowest to 1.15 x the highest), since a resonance
     that moves with the tolerances cannot be packed round its nominal frequency alone.
     """
-    f_hi = 0.5 * axis.drive.current_rate_hz
-    corner = axis.total_viscous_nm_s_per_rad / axis.total_inertia_kgm2 / (2 * math.pi)
-    f_lo = min(0.01 * position_kp_per_s / (2 * math.pi), 1e-4 * f_hi)
-    if corner > 0:
-        f_lo = min(f_lo, 0.3 * corner)
-    f_lo = max(f_lo, 1e-7 * f_hi)
-    n = int(math.ceil(points_per_decade * math.log10(f_hi / f_lo))) + 1
-    f = np.logspace(math.log10(f_lo), math.log10(f_hi), n)
+    f_lo, f_hi = grid_span_hz(axis, position_kp_per_s)
+    f = log_grid_hz(f_lo, f_hi, points_per_decade)
     if axis.load.compliant:
         va = VariantAxis(axis, np.ones((1, len(PARAMETERS))) if factors is None else factors)
         lo = 0.85 * float(np.min(va.antiresonance_hz))
         hi = 1.15 * float(np.max(va.resonance_hz))
         lo, hi = max(lo, f_lo), min(hi, f_hi)
         if hi > lo:
-            m = int(math.ceil(100 * math.log10(hi / lo))) + 1
-            f = np.unique(np.concatenate([f, np.logspace(math.log10(lo), math.log10(hi), m)]))
+            f = np.unique(np.concatenate([f, log_grid_hz(lo, hi, 100)]))
     return 2 * math.pi * f
 
 
