@@ -7,16 +7,18 @@
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 from dataclasses import dataclass
 
 import numpy as np
 
 from core.axis import Axis
 from core.flags import Targets, margin_flags, quantisation_flags, step_flags
-from core.gains import GainSet
+from core.gains import PI, CurrentGains, GainSet, PositionGains, SpeedGains
 from core.margins import LOOPS, FrequencyData, LoopMargins, loop_margins
 from core.motor import ConstantsCheck
-from core.responses import LoadStepResponse, position_and_load_step, response_horizon_s, step_response
+from core.responses import (LoadStepResponse, StepResponse, position_and_load_step, response_horizon_s,
+                            step_response)
 
 
 @dataclass(frozen=True)
@@ -102,9 +104,10 @@ def _analyse(axis: Axis, gains: GainSet, targets: Targets, constants: ConstantsC
         integral["current"] = math.inf
     steps = {}
     fallback = 10.0 * axis.mechanical_time_constant_s
-    for loop in ("current", "speed"):
-        horizon, growth = _horizon(margins[loop], integral[loop], fallback)
-        steps[loop] = step_response(axis, gains, loop, horizon, growth)
+    horizon, growth = _horizon(margins["current"], integral["current"], fallback)
+    steps["current"] = _current_step(axis, gains.current, horizon, growth)
+    horizon, growth = _horizon(margins["speed"], integral["speed"], fallback)
+    steps["speed"] = step_response(axis, gains, "speed", horizon, growth)
     load_torque = targets.load_step_nm if math.isfinite(targets.load_step_nm) else default_load_step_nm(axis)
     # The position step and the load step share a horizon long enough for the load
     # step's recovery (set by the speed integral), and so one model evaluation.
@@ -116,6 +119,17 @@ def _analyse(axis: Axis, gains: GainSet, targets: Targets, constants: ConstantsC
     flags += step_flags({k: v for k, v in steps.items() if margins[k].stable}, targets)
     flags += quantisation_flags(axis, gains, targets)
     return Analysis(margins, freq, steps, load, omega / (2 * math.pi), stiffness, tuple(flags))
+
+
+@lru_cache(maxsize=8)
+def _current_step(axis: Axis, current: CurrentGains, horizon: float, growth: float) -> StepResponse:
+    """The current loop's step: it depends on the axis and the current gains only, so
+    moving a speed or position gain reuses it (arrays read-only)."""
+    placeholder = GainSet(current, SpeedGains(PI(1.0)), PositionGains(1.0), name="current loop only")
+    step = step_response(axis, placeholder, "current", horizon, growth)
+    step.time_s.setflags(write=False)
+    step.value.setflags(write=False)
+    return step
 
 
 def _horizon(m: LoopMargins, integral_time_s: float, fallback_s: float) -> tuple[float, float]:

@@ -31,6 +31,8 @@ POINTS_PER_DECADE = 80
 _REFINE_STEPS = 3
 _REFINE_MAX_STEPS = 30
 _DIP_ROUNDS = 3
+_TAIL = np.logspace(0, 2, 61)[1:]
+"""The Nyquist count's extension above the grid: two decades, relative to its top."""
 _CONVERGED = 1e-10
 """|residual| (log-magnitude or rad) below which a crossing counts as found."""
 
@@ -83,13 +85,13 @@ class LoopMargins:
 
 
 def frequency_grid(axis: Axis, gains: GainSet) -> np.ndarray:
-    """Angular frequencies for the Bode view and the margins, rad/s (a fresh array).
+    """Angular frequencies for the Bode view and the margins, rad/s (read-only, shared).
 
     From well below the position loop's gain and the mechanical corner up to the
     current loop's Nyquist frequency, ``POINTS_PER_DECADE`` per decade, with extra
     points packed round any two-mass resonance and anti-resonance.
     """
-    return _grid(axis, gains.position.kp_per_s).copy()
+    return _grid(axis, gains.position.kp_per_s)
 
 
 def grid_span_hz(axis: Axis, position_kp_per_s: float) -> tuple[float, float]:
@@ -122,7 +124,9 @@ def _grid(axis: Axis, position_kp_per_s: float) -> np.ndarray:
             extra.append(fr * np.linspace(0.9, 1.1, 41))
     if extra:
         f = np.unique(np.concatenate([f, *extra]))
-    return 2 * math.pi * f
+    w = 2 * math.pi * f
+    w.setflags(write=False)
+    return w
 
 
 @dataclass(frozen=True)
@@ -403,7 +407,7 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         omega = frequency_grid(axis, gains)
     ev = _Evaluator(axis, gains)
     # One evaluation: the grid plus a tail to 100x its top for the Nyquist count.
-    tail = omega[-1] * np.logspace(0, 2, 61)[1:]
+    tail = omega[-1] * _TAIL
     grid_model = CascadeModel(axis, gains, FrequencyAlgebra(np.concatenate([omega, tail])))
     ols_all, cls_all = _loop_arrays(grid_model)
     n = len(omega)
