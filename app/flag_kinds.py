@@ -1,7 +1,7 @@
-"""Which plot element a finding is about, read from the finding's words.
+"""Which plot element a finding is about.
 
-:class:`core.flags.Flag` carries loop, severity and message only; the window maps
-the message's opening words to the element to highlight.
+Core checks name themselves in :attr:`core.flags.Flag.kind`; findings without one
+(from the simulation, say) are recognised from their words.
 """
 
 from __future__ import annotations
@@ -24,6 +24,8 @@ _RULES = (
 
 def flag_kind(flag) -> str:
     """One of :data:`KINDS` for a core flag."""
+    if getattr(flag, "kind", "") in KINDS:
+        return flag.kind
     for words, kind in _RULES:
         if words in flag.message:
             return kind

@@ -108,7 +108,7 @@ def quantisation_flags(axis: Axis, gains: GainSet, targets: Targets) -> list[Fla
         return [Flag("speed", "warning",
                      f"One encoder count per speed sample is {quantum:.3g} rad/s ({quantum * 60 / (2 * math.pi):.3g} rpm); "
                      f"times speed Kp it steps the current command by {jitter:.3g} A, {jitter / limit:.0%} of the "
-                     f"{limit:.3g} A limit. Use a finer encoder, a speed filter or a lower Kp.")]
+                     f"{limit:.3g} A limit. Use a finer encoder, a speed filter or a lower Kp.", kind="quantisation")]
     return []
 
 
@@ -133,29 +133,29 @@ def margin_flags(axis: Axis, margins: dict[str, LoopMargins], targets: Targets,
         m = margins[loop]
         if not m.stable:
             flags.append(Flag(loop, "error", f"The closed {loop} loop is unstable: {m.unstable_poles} pole(s) "
-                                             "in the right half plane. Lower the gains or add margin."))
+                                             "in the right half plane. Lower the gains or add margin.", kind="unstable"))
             continue
         pm_min = targets.phase_margin_deg(loop)
         if m.phase_margin_deg < pm_min:
             flags.append(Flag(loop, "warning", f"Phase margin {m.phase_margin_deg:.1f} deg at {_hz(m.phase_margin_hz)} "
-                                               f"is below the {pm_min:g} deg target."))
+                                               f"is below the {pm_min:g} deg target.", kind="phase_margin"))
         gm_min = targets.gain_margin_db(loop)
         if m.gain_margin_db < gm_min:
             flags.append(Flag(loop, "warning", f"Gain margin {m.gain_margin_db:.1f} dB at {_hz(m.gain_margin_hz)} "
-                                               f"is below the {gm_min:g} dB target."))
+                                               f"is below the {gm_min:g} dB target.", kind="gain_margin"))
         if m.delay_margin_s < targets.delay_margin_min_s:
             flags.append(Flag(loop, "warning", f"Delay margin {m.delay_margin_s * 1e6:.0f} us is below the "
-                                               f"{targets.delay_margin_min_s * 1e6:.0f} us target."))
+                                               f"{targets.delay_margin_min_s * 1e6:.0f} us target.", kind="delay_margin"))
         bw_min = getattr(targets, f"{loop}_bandwidth_min_hz")
         if bw_min > 0 and not m.bandwidth_hz >= bw_min:
             flags.append(Flag(loop, "warning", f"Closed-loop bandwidth {_hz(m.bandwidth_hz)} is below the "
-                                               f"{_hz(bw_min)} target."))
+                                               f"{_hz(bw_min)} target.", kind="bandwidth"))
         if m.sensitivity_peak > targets.sensitivity_peak_max:
             flags.append(Flag(loop, "warning", f"Sensitivity peak Ms = {m.sensitivity_peak:.2f} at "
                                                f"{_hz(m.sensitivity_peak_hz)} exceeds {targets.sensitivity_peak_max:g}: "
-                                               "disturbances near that frequency are amplified."))
+                                               "disturbances near that frequency are amplified.", kind="sensitivity"))
         if not math.isfinite(m.crossover_hz):
-            flags.append(Flag(loop, "warning", f"The {loop} loop gain never reaches 1: it has no crossover."))
+            flags.append(Flag(loop, "warning", f"The {loop} loop gain never reaches 1: it has no crossover.", kind="no_crossover"))
 
     cur, spd, pos = margins["current"], margins["speed"], margins["position"]
     for inner, outer, a, b in (("current", "speed", cur, spd), ("speed", "position", spd, pos)):
@@ -165,13 +165,13 @@ def margin_flags(axis: Axis, margins: dict[str, LoopMargins], targets: Targets,
                 flags.append(Flag(outer, "warning",
                                   f"The {outer} loop crosses over at {_hz(b.crossover_hz)}, only {ratio:.2g}x below the "
                                   f"{inner} loop ({_hz(a.crossover_hz)}); the target separation is "
-                                  f"{targets.separation_min:g}x."))
+                                  f"{targets.separation_min:g}x.", kind="separation"))
     limit = targets.current_crossover_max_fraction * axis.drive.current_rate_hz
     if math.isfinite(cur.crossover_hz) and cur.crossover_hz > limit:
         flags.append(Flag("current", "warning",
                           f"Current crossover {_hz(cur.crossover_hz)} is above {targets.current_crossover_max_fraction:g} "
                           f"of the {_hz(axis.drive.current_rate_hz)} sample rate; the continuous model "
-                          "and its margins grow unreliable this close to the sampling."))
+                          "and its margins grow unreliable this close to the sampling.", kind="sampling"))
     for label, f_res in (("resonance", axis.resonance_hz), ("anti-resonance", axis.antiresonance_hz)):
         if not math.isfinite(f_res):
             continue
@@ -180,12 +180,12 @@ def margin_flags(axis: Axis, margins: dict[str, LoopMargins], targets: Targets,
             if math.isfinite(fc) and fc / targets.resonance_clearance <= f_res <= fc * targets.resonance_clearance:
                 flags.append(Flag(loop, "warning",
                                   f"The load {label} at {_hz(f_res)} lies within {targets.resonance_clearance:g}x of the "
-                                  f"{loop} crossover ({_hz(fc)}); consider a notch or a lower bandwidth."))
+                                  f"{loop} crossover ({_hz(fc)}); consider a notch or a lower bandwidth.", kind="resonance"))
     if constants is not None and not constants.consistent:
         flags.append(Flag("axis", "warning",
                           f"Datasheet Kt and Ke disagree by {constants.relative_difference * 100:+.1f} % after conversion "
                           f"(Kt {constants.kt_given_nm_per_a:.4g} vs {constants.kt_from_ke_nm_per_a:.4g} N*m/A implied "
-                          "by Ke); check the rms/peak and line/phase conventions."))
+                          "by Ke); check the rms/peak and line/phase conventions.", kind="constants"))
     order = {"error": 0, "warning": 1, "info": 2}
     return sorted(flags, key=lambda f: order.get(f.severity, 3))
 
@@ -196,5 +196,5 @@ def step_flags(steps: dict, targets: Targets) -> list[Flag]:
     for loop, st in steps.items():
         if math.isfinite(targets.step_overshoot_max_pct) and st.overshoot_pct > targets.step_overshoot_max_pct:
             flags.append(Flag(loop, "warning", f"Step overshoot {st.overshoot_pct:.1f} % exceeds the "
-                                               f"{targets.step_overshoot_max_pct:g} % target."))
+                                               f"{targets.step_overshoot_max_pct:g} % target.", kind="step_overshoot"))
     return flags

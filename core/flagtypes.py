@@ -17,8 +17,13 @@ class Flag:
         "error" | "warning" | "info".
     message : str
         One sentence for the user, with numbers and units.
+    kind : str
+        Which check raised it, for front ends that point at the plot element concerned
+        ("phase_margin", "gain_margin", "sensitivity", "unstable", "separation",
+        "resonance", ...); "" when no particular check applies.
     """
 
     loop: str
     severity: str  # "error" | "warning" | "info"
     message: str
+    kind: str = ""

@@ -136,3 +136,19 @@ def test_targets_reject_bad_values_naming_the_field(field, kwargs):
     with pytest.raises(InputError) as err:
         Targets(**kwargs)
     assert err.value.field == field
+
+
+def test_every_core_check_names_its_kind():
+    """Front ends point at the plot element from Flag.kind, not from the wording."""
+    from core.analysis import analyse
+    from core.flags import targets_from_dict
+    from core.presets import builtin_names, builtin_preset
+
+    seen = 0
+    for name in builtin_names():
+        p = builtin_preset(name)
+        for g in p.gain_sets:
+            for f in analyse(p.axis, g, targets_from_dict(p.targets), p.constants_check).flags:
+                assert f.kind, f
+                seen += 1
+    assert seen > 0
