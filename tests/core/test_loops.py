@@ -212,3 +212,19 @@ def test_control_models_delay_free_equal_exact():
     exact = CascadeModel(axis, g, FrequencyAlgebra(OMEGA))
     for loop in ("current", "speed", "position"):
         assert_allclose(models[loop].open_loop(1j * OMEGA), getattr(exact, f"{loop}_open"), rtol=1e-8)
+
+
+def test_following_error_without_feedforward_is_the_position_sensitivity():
+    """With no feedforward, (th* - th)/th* = 1/(1 + L_p) (derived); velocity and inertia
+    feedforward take the error off the feedback loop: at 0.5 Hz it falls by more than
+    20x (derived: with ideal inner loops it would vanish; the loops' lag leaves a rest)."""
+    from dataclasses import replace
+
+    axis, g = axes.reference_axis(True)
+    w = 2 * math.pi * np.array([0.5, 2.0, 10.0])
+    none = replace(g, position=replace(g.position, velocity_ff=0.0, acceleration_ff=0.0))
+    m = CascadeModel(axis, none, FrequencyAlgebra(w))
+    assert_allclose(m.following_error, 1.0 / (1.0 + m.position_open), rtol=1e-12)
+    full = replace(g, position=replace(g.position, velocity_ff=1.0, acceleration_ff=1.0))
+    e_full = CascadeModel(axis, full, FrequencyAlgebra(w)).following_error
+    assert abs(e_full[0]) < abs(m.following_error[0]) / 20
