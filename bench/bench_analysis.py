@@ -10,21 +10,13 @@ the same run, and their ratio. Targets (issue 2): ratio >= 30, median < 2 ms.
 
 from __future__ import annotations
 
-import statistics
 import sys
-import time
 from dataclasses import replace
 
 import numpy as np
+from timing import median_s  # bench/ is on the path when a benchmark is run as a script
 
 
-def _median_s(fn, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
 
 
 def main(preset_name: str = "belt_gantry") -> None:
@@ -46,7 +38,7 @@ def main(preset_name: str = "belt_gantry") -> None:
                                                                           * (1 + 1e-3 * k))))
                 for k in range(200)]
     calls = iter(range(10 ** 9))
-    ours = _median_s(lambda: analyse(axis, variants[next(calls) % len(variants)], targets,
+    ours = median_s(lambda: analyse(axis, variants[next(calls) % len(variants)], targets,
                                      preset.constants_check), 200)
 
     omega = frequency_grid(axis, gains)
@@ -67,7 +59,7 @@ def main(preset_name: str = "belt_gantry") -> None:
         control.step_response(model.position_disturbance_speed, T=result.load_step.time_s)
 
     reference()
-    theirs = _median_s(reference, 5)
+    theirs = median_s(reference, 5)
     print(f"preset {preset_name}: {len(omega)} frequencies, {len(result.steps['speed'].time_s)} samples per response")
     print(f"core.analysis.analyse      median {ours * 1e3:8.3f} ms")
     print(f"python-control reference   median {theirs * 1e3:8.3f} ms")

@@ -14,13 +14,12 @@ Run: ``python bench/bench_simulate.py`` (from the repository root).
 from __future__ import annotations
 
 import os
-import statistics
 import subprocess
 import sys
 import tempfile
-import time
 
 import numpy as np
+from timing import median_s  # bench/ is on the path when a benchmark is run as a script
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 
@@ -54,13 +53,6 @@ def bench_axis() -> tuple[Axis, GainSet]:
     return axis, gains
 
 
-def _median(fn, repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
 
 
 def _fresh_process_times() -> tuple[float, float]:
@@ -84,8 +76,8 @@ def main() -> int:
     args = (pr.ad, pr.bd, pr.ac, pr.bc, pr.fp, pr.ip, pr.sos_fb, pr.sos_cmd, pr.ref_a, pr.ref_b, pr.ref_c,
             pr.t_load, out)
 
-    full = _median(lambda: simulate_scenario(axis, gains, SCENARIO), 200)
-    kernel = _median(lambda: K.run_kernel(*args), 200)
+    full = median_s(lambda: simulate_scenario(axis, gains, SCENARIO), 200)
+    kernel = median_s(lambda: K.run_kernel(*args), 200)
 
     # Pure Python: the same source, interpreted, helpers included.
     helpers = ("_pi_step", "_biquads", "_friction")
@@ -95,7 +87,7 @@ def main() -> int:
             setattr(K, h, saved[h].py_func)
         out_py = np.zeros_like(out)
         args_py = args[:-1] + (out_py,)
-        python = _median(lambda: K.run_kernel.py_func(*args_py), 5)
+        python = median_s(lambda: K.run_kernel.py_func(*args_py), 5)
     finally:
         for h in helpers:
             setattr(K, h, saved[h])

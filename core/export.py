@@ -52,6 +52,7 @@ import core
 from core.analysis import Analysis, analyse, analysis_summary
 from core.errors import InputError
 from core.files import atomic_write as _atomic_write
+from core.files import read_text
 from core.safety import CAUTION  # the caution every export carries
 from core.flags import Flag, targets_from_dict
 from core.gains import PI, CurrentGains, GainSet, Notch, PositionGains, SpeedGains
@@ -405,13 +406,7 @@ def loads_profile(text: str, source: str = "<text>") -> Profile:
 def load_profile(path: str | os.PathLike) -> Profile:
     """Read an export profile file (UTF-8 TOML); errors as :func:`loads_profile`."""
     path = Path(path)
-    try:
-        text = path.read_bytes().decode("utf-8")
-    except OSError as err:
-        raise InputError("profile", str(path), f"a readable profile file ({err.strerror or err})") from None
-    except UnicodeDecodeError:
-        raise InputError("profile", str(path), "a UTF-8 text file") from None
-    return loads_profile(text, source=path.name)
+    return loads_profile(read_text(path, "profile", "profile file"), source=path.name)
 
 
 def _profile_dir() -> Path:

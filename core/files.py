@@ -56,3 +56,15 @@ def atomic_write(path: str | os.PathLike, write: Callable[[Path], None], field: 
         tmp_path.unlink(missing_ok=True)
         raise
     return path
+
+
+def read_text(path: str | os.PathLike, field: str, what: str) -> str:
+    """The UTF-8 text of ``path``; unreadable or non-UTF-8 files raise :class:`InputError`
+    naming ``field`` and saying the ``what`` that was expected ("preset file", ...)."""
+    path = Path(path)
+    try:
+        return path.read_bytes().decode("utf-8")
+    except OSError as err:
+        raise InputError(field, str(path), f"a readable {what} ({err.strerror or err})") from None
+    except UnicodeDecodeError:
+        raise InputError(field, str(path), "a UTF-8 text file") from None

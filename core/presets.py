@@ -32,7 +32,7 @@ import tomli_w
 from core.axis import Axis
 from core.drive import Drive
 from core.errors import InputError
-from core.files import atomic_write
+from core.files import atomic_write, read_text
 from core.gains import PI, CurrentGains, GainSet, Notch, PositionGains, SpeedGains
 from core.load import Load
 from core.motor import ConstantsCheck, current_to_model, motor_from_datasheet
@@ -471,13 +471,7 @@ def loads_preset(text: str, source: str = "<text>") -> Preset:
 def load_preset(path: str | os.PathLike) -> Preset:
     """Read a preset file (UTF-8 TOML); see :func:`loads_preset` for the errors."""
     path = Path(path)
-    try:
-        text = path.read_bytes().decode("utf-8")
-    except OSError as err:
-        raise InputError("file", str(path), f"a readable preset file ({err.strerror or err})") from None
-    except UnicodeDecodeError:
-        raise InputError("file", str(path), "a UTF-8 text file") from None
-    return replace(loads_preset(text, source=path.name), source_path=path)
+    return replace(loads_preset(read_text(path, "file", "preset file"), source=path.name), source_path=path)
 
 
 # --- built-in presets --------------------------------------------------------------------
