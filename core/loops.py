@@ -53,6 +53,10 @@ class cached_property:
 class FrequencyAlgebra:
     """Blocks as complex arrays at ``s = sigma + j*omega``; delays exact.
 
+    Each polynomial and delay is evaluated once per algebra and remembered by its
+    coefficients (a cascade meets the same mechanical denominator, the integrator and
+    the same delay several times). The values are shared, so they are never written to.
+
     Parameters
     ----------
     omega_rad_s : array_like
@@ -61,16 +65,42 @@ class FrequencyAlgebra:
         Real part of s, 1/s (0 for the imaginary axis).
     """
 
+    MEMO_SIZE = 64
+    """Values remembered at most; a long-lived algebra forgets them all beyond this."""
+
     def __init__(self, omega_rad_s, sigma_per_s: float = 0.0):
         self.s = sigma_per_s + 1j * np.asarray(omega_rad_s, dtype=float)
+        self._memo = {}
+
+    @classmethod
+    def at(cls, s) -> "FrequencyAlgebra":
+        """The algebra at arbitrary complex points ``s``, 1/s."""
+        alg = cls.__new__(cls)
+        alg.s = np.asarray(s, dtype=complex)
+        alg._memo = {}
+        return alg
+
+    def _remember(self, key, value):
+        if len(self._memo) >= self.MEMO_SIZE:
+            self._memo.clear()
+        self._memo[key] = value
+        return value
 
     def delay(self, delay_s: float):
         """exp(-s * delay_s)."""
-        return np.exp(-self.s * delay_s) if delay_s > 0 else 1.0
+        if delay_s <= 0:
+            return 1.0
+        value = self._memo.get(delay_s)
+        return self._remember(delay_s, np.exp(-self.s * delay_s)) if value is None else value
 
     def tf(self, num, den):
         """The rational block num(s)/den(s), coefficients highest power first."""
-        return _horner(num, self.s) / _horner(den, self.s)
+        return self._polynomial(num) / self._polynomial(den)
+
+    def _polynomial(self, coefficients):
+        key = tuple(coefficients)
+        value = self._memo.get(key)
+        return self._remember(key, _horner(coefficients, self.s)) if value is None else value
 
     @staticmethod
     def feedback(forward, back):
@@ -193,8 +223,12 @@ class CascadeModel:
         self.delays_s = axis.drive.loop_delays_s()
 
     # --- mechanics: motor/load speed per motor/load torque -----------------------------
+    @cached_property
+    def _mechanics(self) -> tuple:
+        return mechanics_polynomials(self.axis)
+
     def _mech(self, index: int):
-        p = mechanics_polynomials(self.axis)
+        p = self._mechanics
         return self.alg.tf(p[index], p[5])
 
     @cached_property

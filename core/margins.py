@@ -1,9 +1,15 @@
 """Crossovers, margins, sensitivity peak, bandwidth and a Nyquist stability count.
 
 Everything is computed from the exact-delay frequency response of
-:class:`core.loops.CascadeModel`: grid values first, then each crossing refined
-by a few Illinois (modified regula falsi) steps on the model itself, all loops
-and all crossings of one iteration in one vectorised evaluation.
+:class:`core.loops.CascadeModel`: grid values first, then each crossing and each
+sensitivity dip refined on the model itself, all loops, crossings and dips of one
+round in one vectorised evaluation. A crossing's first round samples its grid
+bracket at a few interior points and takes the root of the polynomial through
+them; a dip's takes the minimum of its polynomial. Each is then evaluated there and
+done when it meets its tolerance (crossings: residual; dips: the predicted value),
+else refined further by bracketed secant / Illinois steps or parabolic steps. So a
+smooth loop costs two rounds, and a sharp resonance as many as it needs; a peak of
+|L| found above 0 dB between grid points adds its two crossings.
 
 Stability is decided by the argument principle, not from the margins: along the
 Nyquist contour (up the imaginary axis, round the origin to the right on a small
@@ -24,15 +30,21 @@ import numpy as np
 
 from core.axis import Axis
 from core.gains import GainSet
+from core import search_kernels
 from core.loops import CascadeModel, FrequencyAlgebra
+from core.search_kernels import PROBES, dip_after_probe, falsi_point, falsi_update, probe_seed
 
 LOOPS = ("current", "speed", "position")
 POINTS_PER_DECADE = 80
-_REFINE_STEPS = 3
 _REFINE_MAX_STEPS = 30
-_DIP_ROUNDS = 3
+_DIP_MAX_ROUNDS = 12
+"""Most steps on a dip after its probe round (sharp resonances; smooth dips take one)."""
+_DIP_CONVERGED = 1e-7
+"""|log distance| by which a dip's evaluated minimum may miss its prediction and count as found."""
 _TAIL = np.logspace(0, 2, 61)[1:]
 """The Nyquist count's extension above the grid: two decades, relative to its top."""
+_ARC = np.exp(1j * np.linspace(-0.5 * np.pi, 0.5 * np.pi, 33))
+"""The Nyquist contour's right-hand arc round the origin, per unit radius."""
 _CONVERGED = 1e-10
 """|residual| (log-magnitude or rad) below which a crossing counts as found."""
 
@@ -129,6 +141,14 @@ def _grid(axis: Axis, position_kp_per_s: float) -> np.ndarray:
     return w
 
 
+@lru_cache(maxsize=32)
+def _grid_algebra(axis: Axis, position_kp_per_s: float) -> FrequencyAlgebra:
+    """The default grid and its Nyquist tail as one algebra, kept between recomputes so
+    that the blocks no gain touches (mechanics, armature, filters, delays) are evaluated once."""
+    omega = _grid(axis, position_kp_per_s)
+    return FrequencyAlgebra(np.concatenate([omega, omega[-1] * _TAIL]))
+
+
 @dataclass(frozen=True)
 class FrequencyData:
     """Open- and closed-loop frequency responses on the grid (complex, per loop).
@@ -158,56 +178,61 @@ class _Evaluator:
         return _loop_arrays(CascadeModel(self.axis, self.gains, FrequencyAlgebra(omega)))
 
     def at_s(self, s):
-        alg = FrequencyAlgebra(np.zeros(1))
-        alg.s = np.asarray(s, dtype=complex)
-        return _loop_arrays(CascadeModel(self.axis, self.gains, alg))
+        return _loop_arrays(CascadeModel(self.axis, self.gains, FrequencyAlgebra.at(s)))
 
 
-def _residual(kind: str, ol, cl, ref):
-    if kind == "gain":
-        return np.log(np.abs(ol))
-    if kind == "phase":
-        return np.angle(-ol)
-    return np.log(np.abs(cl)) - ref          # bandwidth: |T| against |T0|/sqrt(2)
+def probe_points(a, b) -> np.ndarray:
+    """The interior points at which each bracket [a, b] is sampled first, shape (n, PROBES)."""
+    return a[:, None] + (b - a)[:, None] * search_kernels.PROBE_U[1:-1]
 
 
-def falsi_point(a, b, fa, fb, prev, fprev) -> np.ndarray:
-    """Next point of bracketed root searches, arrays over brackets.
+def dip_probe_points(x: np.ndarray) -> np.ndarray:
+    """Two points in each half of every triple (log w), shape (n, 4)."""
+    x0, x1, x2 = x.T
+    return np.column_stack([x0 + (x1 - x0) / 3, x0 + 2 * (x1 - x0) / 3, x1 + (x2 - x1) / 3, x1 + 2 * (x2 - x1) / 3])
 
-    The secant through the two latest points (``prev``, ``b``) when it falls strictly
-    inside the bracket [a, b] (superlinear near the root), else the regula-falsi point
-    of the bracket with the Illinois-weighted ``fa``.
-    """
+
+def dip_step(x, y, v, yv, predicted, rounds: int):
+    """One step on dips (:func:`core.search_kernels.dip_step` with this module's limits)."""
+    return search_kernels.dip_step(x, y, v, yv, predicted, rounds, _DIP_CONVERGED, _DIP_MAX_ROUNDS)
+
+
+def residuals(kind, ol, cl, ref):
+    """Crossing residuals by kind code (0 gain: log|L|, 1 phase: arg(-L), 2 bandwidth: log|T| - ref)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        falsi = np.where(fb != fa, b - fb * (b - a) / (fb - fa), 0.5 * (a + b))
-        secant = b - fb * (b - prev) / (fb - fprev)
-    inside = np.isfinite(secant) & (secant > np.minimum(a, b)) & (secant < np.maximum(a, b)) & (prev != b)
-    return np.where(inside, secant, falsi)
+        return np.where(kind == 0, np.log(np.abs(ol)),
+                        np.where(kind == 1, np.angle(-ol), np.log(np.abs(cl)) - ref))
 
 
-def falsi_update(a, b, fa, fb, x, fx):
-    """(a, b, fa, fb, prev, fprev) after evaluating ``fx`` at ``x`` (Illinois: halve the
-    retained end's residual when the same end is kept twice)."""
-    same = np.sign(fx) == np.sign(fb)
-    return (np.where(same, a, b), x, np.where(same, fa * 0.5, fb), fx, b, fb)
+_KIND_CODES = {"gain": 0, "phase": 1, "bw": 2}
 
 
 class _Crossings:
-    """Illinois (modified regula falsi) iterations on log(w) for many brackets at once.
+    """Bracketed root searches on log(w) for many brackets at once.
 
     A bracket is (loop index, kind, w_lo, w_hi, r_lo, r_hi, ref) with residuals of
     opposite sign at its ends; kinds are "gain" (log|L|), "phase" (arg(-L)) and "bw"
-    (log|T| - ref). Every bracket takes ``_REFINE_STEPS`` steps, then more until its
-    residual is below 1e-8 (sharp resonances), at most ``_REFINE_MAX_STEPS``.
+    (log|T| - ref). A new bracket is first sampled at ``PROBES`` interior points, which
+    narrow it and give a root estimate (:func:`probe_seed`); from then on each round
+    evaluates one point per bracket (the estimate, then bracketed secant / Illinois
+    steps) until the residual is below ``_CONVERGED``, at most ``_REFINE_MAX_STEPS``.
     """
 
     def __init__(self):
         self.loop = np.zeros(0, int)
-        self.kind = np.zeros(0, "<U5")
+        self.kind = np.zeros(0, int)
         self.a = self.b = self.fa = self.fb = self.ref = self.x = self.prev = self.fprev = np.zeros(0)
+        self.pending = np.zeros(0)
         self.steps = np.zeros(0, int)
         self.values = np.zeros((3, 0), complex)
+        self.probing = np.zeros(0, int)
         self.active = np.zeros(0, int)
+        self._round = None
+
+    @property
+    def busy(self) -> bool:
+        """Whether any bracket still needs a round."""
+        return bool(len(self.active) or len(self.probing))
 
     def add(self, brackets: list) -> None:
         """Start refining more brackets."""
@@ -216,7 +241,7 @@ class _Crossings:
         n0 = len(self.loop)
         col = list(zip(*brackets))
         self.loop = np.concatenate([self.loop, np.array(col[0], int)])
-        self.kind = np.concatenate([self.kind, np.array(col[1])])
+        self.kind = np.concatenate([self.kind, np.array([_KIND_CODES[k] for k in col[1]], int)])
         self.a = np.concatenate([self.a, np.log(np.array(col[2], float))])
         self.b = np.concatenate([self.b, np.log(np.array(col[3], float))])
         self.fa = np.concatenate([self.fa, np.array(col[4], float)])
@@ -225,35 +250,46 @@ class _Crossings:
         self.x = np.concatenate([self.x, self.b[n0:]])
         self.prev = np.concatenate([self.prev, self.a[n0:]])
         self.fprev = np.concatenate([self.fprev, self.fa[n0:]])
+        self.pending = np.concatenate([self.pending, np.full(len(brackets), np.nan)])
         self.steps = np.concatenate([self.steps, np.zeros(len(brackets), int)])
         self.values = np.concatenate([self.values, np.zeros((3, len(brackets)), complex)], axis=1)
-        self.active = np.concatenate([self.active, np.arange(n0, len(self.loop))])
+        self.probing = np.concatenate([self.probing, np.arange(n0, len(self.loop))])
 
-    def proposal(self) -> np.ndarray:
-        """The next point of every active bracket, log(rad/s)."""
-        i = self.active
-        return falsi_point(self.a[i], self.b[i], self.fa[i], self.fb[i], self.prev[i], self.fprev[i])
+    def proposal(self) -> tuple[np.ndarray, np.ndarray]:
+        """(points, log(rad/s); loop of each point): the probes of each new bracket, then
+        one point per bracket being refined."""
+        p, i = self.probing, self.active
+        xp = probe_points(self.a[p], self.b[p]).ravel()
+        xi = falsi_point(self.a[i], self.b[i], self.fa[i], self.fb[i], self.prev[i], self.fprev[i])
+        xi = np.where(np.isnan(self.pending[i]), xi, self.pending[i])
+        self._round = (p, i, xi)
+        return np.concatenate([xp, xi]), np.concatenate([np.repeat(self.loop[p], PROBES), self.loop[i]])
 
-    def update(self, xa: np.ndarray, ol: np.ndarray, cl: np.ndarray, all_ol: np.ndarray) -> None:
-        """Take the loops' values at the proposed points (``ol``/``cl`` of each bracket's own
+    def update(self, ol: np.ndarray, cl: np.ndarray, all_ol: np.ndarray) -> None:
+        """Take the loops' values at the proposed points (``ol``/``cl`` of each point's own
         loop; ``all_ol`` of all three loops, shape (3, n))."""
-        i = self.active
-        kind = self.kind[i]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            fx = np.where(kind == "gain", np.log(np.abs(ol)),
-                          np.where(kind == "phase", np.angle(-ol), np.log(np.abs(cl)) - self.ref[i]))
-        self.values[:, i] = all_ol
-        self.x[i] = xa
+        p, i, xi = self._round
+        n_probe = PROBES * len(p)
+        fx = residuals(np.concatenate([np.repeat(self.kind[p], PROBES), self.kind[i]]), ol, cl,
+                       np.concatenate([np.repeat(self.ref[p], PROBES), self.ref[i]]))
+        if n_probe:
+            (self.a[p], self.b[p], self.fa[p], self.fb[p],
+             self.pending[p]) = probe_seed(self.a[p], self.b[p], self.fa[p], self.fb[p], fx[:n_probe].reshape(-1, PROBES))
+        fi = fx[n_probe:]
+        self.values[:, i] = all_ol[:, n_probe:]
+        self.x[i] = xi
+        self.pending[i] = np.nan
         (self.a[i], self.b[i], self.fa[i], self.fb[i],
-         self.prev[i], self.fprev[i]) = falsi_update(self.a[i], self.b[i], self.fa[i], self.fb[i], xa, fx)
+         self.prev[i], self.fprev[i]) = falsi_update(self.a[i], self.b[i], self.fa[i], self.fb[i], xi, fi)
         self.steps[i] += 1
-        keep = (self.steps[i] < _REFINE_STEPS) | (
-            (np.abs(fx) > _CONVERGED) & (np.abs(self.b[i] - self.a[i]) > 1e-12) & (self.steps[i] < _REFINE_MAX_STEPS))
-        self.active = i[keep]
+        keep = (np.abs(fi) > _CONVERGED) & (np.abs(self.b[i] - self.a[i]) > 1e-12) & (self.steps[i] < _REFINE_MAX_STEPS)
+        self.active = np.concatenate([i[keep], p])
+        self.probing = np.zeros(0, int)
 
 
 class _Dips:
-    """Local minima of a distance on the grid, narrowed by successive parabolic steps in log(w).
+    """Local minima of a distance on the grid, narrowed in log(w): a probe round
+    (:func:`dip_after_probe`), then steps (:func:`dip_step`) until each is found.
 
     Rows are triples (log w, log distance) with the lowest in the middle; ``owner`` is
     the loop, ``is_peak`` marks rows whose distance is 1/|L| (peaks of |L|) rather than
@@ -265,30 +301,50 @@ class _Dips:
         triples += [_dip_brackets(omega, 1.0 / np.abs(ol), only_above=1.0) for ol in ols]
         self.x = np.concatenate([t[0] for t in triples])
         self.y = np.concatenate([t[1] for t in triples])
+        self.ends = (self.x[:, [0, 2]], self.y[:, [0, 2]])
         self.owner = np.concatenate([np.full(len(t[0]), k % 3) for k, t in enumerate(triples)])
         self.is_peak = np.concatenate([np.full(len(t[0]), k >= 3) for k, t in enumerate(triples)])
+        self.probed = False
         self.rounds = 0
+        self.active = np.zeros(0, int)
+        self.pending = self.predicted = np.zeros(0)
 
-    def proposal(self) -> np.ndarray:
-        """Parabola vertices of every row, log(rad/s) (empty once the rounds are done)."""
-        return _parabola_vertex(self.x, self.y) if self.rounds < _DIP_ROUNDS else np.zeros(0)
+    @property
+    def done(self) -> bool:
+        return self.probed and not len(self.active)
+
+    def proposal(self) -> tuple[np.ndarray, np.ndarray]:
+        """(points, log(rad/s); loop of each point): the probes first, then one point per
+        dip still being narrowed."""
+        if not self.probed:
+            return dip_probe_points(self.x).ravel(), np.repeat(self.owner, 4)
+        return self.pending[self.active], self.owner[self.active]
 
     def update(self, v: np.ndarray, lv: np.ndarray) -> None:
-        """Take L (each row's own loop) at the vertices."""
+        """Take L (each point's own loop) at the proposed points."""
+        rows = np.arange(len(self.x)) if not self.probed else self.active
+        peak = np.repeat(self.is_peak[rows], 1 if self.probed else 4)
         with np.errstate(divide="ignore"):
-            yv = np.where(self.is_peak, -np.log(np.abs(lv)), np.log(np.abs(1.0 + lv)))
-        self.x, self.y = _narrow(self.x, self.y, v, yv)
+            yv = np.where(peak, -np.log(np.abs(lv)), np.log(np.abs(1.0 + lv)))
+        if not self.probed:
+            self.x, self.y, self.pending, self.predicted = dip_after_probe(
+                self.x, self.y, v.reshape(-1, 4), yv.reshape(-1, 4))
+            self.probed, self.active = True, rows
+            return
         self.rounds += 1
+        (self.x[rows], self.y[rows], self.pending[rows], self.predicted[rows],
+         done) = dip_step(self.x[rows], self.y[rows], v, yv, self.predicted[rows], self.rounds)
+        self.active = rows[~done]
 
     def hidden_crossings(self) -> list:
-        """Gain-crossover brackets on both sides of each |L| peak found above 0 dB."""
+        """Gain-crossover brackets on both sides of each |L| peak found above 0 dB: from the
+        grid points beside the peak (below 0 dB) to its highest point."""
         out = []
+        (x_ends, y_ends) = self.ends
         for r in np.nonzero(self.is_peak & (self.y[:, 1] < 0.0))[0]:
-            for lo, hi in ((0, 1), (1, 2)):
-                r_lo, r_hi = -self.y[r, lo], -self.y[r, hi]
-                if np.signbit(r_lo) != np.signbit(r_hi):
-                    out.append((int(self.owner[r]), "gain", math.exp(self.x[r, lo]), math.exp(self.x[r, hi]),
-                                r_lo, r_hi, 0.0))
+            top, r_top = math.exp(self.x[r, 1]), -self.y[r, 1]
+            out.append((int(self.owner[r]), "gain", math.exp(x_ends[r, 0]), top, -y_ends[r, 0], r_top, 0.0))
+            out.append((int(self.owner[r]), "gain", top, math.exp(x_ends[r, 1]), r_top, -y_ends[r, 1], 0.0))
         return out
 
     def sensitivity_rows(self, loop: int) -> tuple[np.ndarray, np.ndarray]:
@@ -302,45 +358,11 @@ def _dip_brackets(omega: np.ndarray, distance: np.ndarray, count: int = 3, only_
 
     With ``only_above``, only minima whose grid value exceeds it are taken (possibly none).
     """
-    d = distance
-    inner = np.nonzero((d[1:-1] <= d[:-2]) & (d[1:-1] <= d[2:]))[0] + 1
-    if only_above:
-        inner = inner[d[inner] > only_above]
-        if len(inner) == 0:
-            return np.zeros((0, 3)), np.zeros((0, 3))
-    elif len(inner) == 0:
-        inner = np.array([min(max(int(np.argmin(d)), 1), len(d) - 2)])
-    inner = inner[np.argsort(d[inner])[:count]]
+    inner = search_kernels.deepest_minima(distance, count, only_above)
+    if len(inner) == 0:
+        return np.zeros((0, 3)), np.zeros((0, 3))
     idx = inner[:, None] + np.array([-1, 0, 1])[None, :]
-    return np.log(omega[idx]), np.log(d[idx])
-
-
-def _parabola_vertex(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """Abscissa of the parabola through each row's three points, kept inside the bracket."""
-    x0, x1, x2 = x.T
-    y0, y1, y2 = y.T
-    num = (x1 - x0) ** 2 * (y1 - y2) - (x1 - x2) ** 2 * (y1 - y0)
-    den = (x1 - x0) * (y1 - y2) - (x1 - x2) * (y1 - y0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        v = x1 - 0.5 * num / den
-    # Fall back to the midpoint of the wider half when the parabola is flat or convex down.
-    wide = np.where(x2 - x1 > x1 - x0, 0.5 * (x1 + x2), 0.5 * (x0 + x1))
-    v = np.where(np.isfinite(v) & (v > x0) & (v < x2) & (np.abs(v - x1) > 1e-12), v, wide)
-    return v
-
-
-def _narrow(x: np.ndarray, y: np.ndarray, v: np.ndarray, yv: np.ndarray):
-    """Replace one end of each bracket by the new point, keeping the lowest in the middle."""
-    x0, x1, x2 = x.T
-    y0, y1, y2 = y.T
-    left, better = v < x1, yv < y1
-    nx = np.column_stack([np.where(left, np.where(better, x0, v), np.where(better, x1, x0)),
-                          np.where(better, v, x1),
-                          np.where(left, np.where(better, x1, x2), np.where(better, x2, v))])
-    ny = np.column_stack([np.where(left, np.where(better, y0, yv), np.where(better, y1, y0)),
-                          np.where(better, yv, y1),
-                          np.where(left, np.where(better, y1, y2), np.where(better, y2, yv))])
-    return nx, ny
+    return np.log(omega[idx]), np.log(distance[idx])
 
 
 def _sign_changes(r: np.ndarray) -> np.ndarray:
@@ -405,10 +427,13 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
     """
     if omega is None:
         omega = frequency_grid(axis, gains)
+        grid_algebra = _grid_algebra(axis, gains.position.kp_per_s)
+    else:
+        grid_algebra = FrequencyAlgebra(np.concatenate([omega, omega[-1] * _TAIL]))
     ev = _Evaluator(axis, gains)
     # One evaluation: the grid plus a tail to 100x its top for the Nyquist count.
     tail = omega[-1] * _TAIL
-    grid_model = CascadeModel(axis, gains, FrequencyAlgebra(np.concatenate([omega, tail])))
+    grid_model = CascadeModel(axis, gains, grid_algebra)
     ols_all, cls_all = _loop_arrays(grid_model)
     n = len(omega)
     ols = [o[:n] for o in ols_all]
@@ -422,12 +447,13 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
             brackets.append((li, "gain", omega[k], omega[k + 1], r_gain[k], r_gain[k + 1], 0.0))
         # arg L = -180 deg (mod 360) where L crosses the negative real axis.
         im = ol.imag
-        for k in np.nonzero((np.signbit(im[:-1]) != np.signbit(im[1:])) & (ol.real[:-1] + ol.real[1:] < 0))[0]:
-            r = _residual("phase", ol[k:k + 2], None, 0.0)
-            # A true crossing of the negative real axis has arg(-L) near 0 on both sides;
-            # a jump through +-pi is L passing the positive real axis instead.
-            if np.signbit(r[0]) != np.signbit(r[1]) and max(abs(r[0]), abs(r[1])) < 0.5 * np.pi:
-                brackets.append((li, "phase", omega[k], omega[k + 1], r[0], r[1], 0.0))
+        k = np.nonzero((np.signbit(im[:-1]) != np.signbit(im[1:])) & (ol.real[:-1] + ol.real[1:] < 0))[0]
+        r0, r1 = np.angle(-ol[k]), np.angle(-ol[k + 1])
+        # A true crossing of the negative real axis has arg(-L) near 0 on both sides;
+        # a jump through +-pi is L passing the positive real axis instead.
+        true = (np.signbit(r0) != np.signbit(r1)) & (np.maximum(np.abs(r0), np.abs(r1)) < 0.5 * np.pi)
+        brackets += [(li, "phase", omega[j], omega[j + 1], a, b, 0.0)
+                     for j, a, b in zip(k[true].tolist(), r0[true].tolist(), r1[true].tolist())]
         ref = math.log(abs(cl[0]) / math.sqrt(2.0))
         r_bw = np.log(np.abs(cl)) - ref
         below = np.nonzero(r_bw < 0)[0]
@@ -438,26 +464,25 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
     # deepest dips of |1 + L| (sensitivity peaks) and the highest peaks of |L| below 1 (a
     # resonance that may poke through 0 dB between grid points) are narrowed, and the
     # first evaluation also carries the Nyquist arc round the origin.
-    theta = np.linspace(-0.5 * np.pi, 0.5 * np.pi, 33)
-    arc_s = omega[0] * np.exp(1j * theta)
+    arc_s = omega[0] * _ARC
     crossings = _Crossings()
     crossings.add(brackets)
     dips = _Dips(omega, ols)
     arc = None
-    while arc is None or len(crossings.active) or dips.rounds < _DIP_ROUNDS:
-        xc, xv = crossings.proposal(), dips.proposal()
+    while arc is None or crossings.busy or not dips.done:
+        (xc, lc), (xv, lv) = crossings.proposal(), dips.proposal()
         s_all = np.concatenate([1j * np.exp(xc), 1j * np.exp(xv), arc_s if arc is None else []])
         ol_all, cl_all = ev.at_s(s_all)
         ol_all = np.stack(np.broadcast_arrays(*ol_all))
-        cl_all = np.stack(np.broadcast_arrays(*cl_all))
         nc, nv = len(xc), len(xv)
         if nc:
             pick = np.arange(nc)
-            own = crossings.loop[crossings.active]
-            crossings.update(xc, ol_all[own, pick], cl_all[own, pick], ol_all[:, :nc])
+            cl_all = np.stack(np.broadcast_arrays(*cl_all))
+            crossings.update(ol_all[lc, pick], cl_all[lc, pick], ol_all[:, :nc])
         if nv:
-            dips.update(xv, ol_all[dips.owner, nc + np.arange(nv)])
-            if dips.rounds == _DIP_ROUNDS:
+            was_done = dips.done
+            dips.update(xv, ol_all[lv, nc + np.arange(nv)])
+            if dips.done and not was_done:
                 hidden = dips.hidden_crossings()
                 brackets += hidden
                 crossings.add(hidden)

@@ -133,27 +133,35 @@ class _Contour:
         k = np.arange(samples // 2 + 1)
         self.s_far = 50.0 * math.pi * samples / self.period + 10.0 * self.sigma
         grid = self.sigma + 2j * math.pi * k / self.period
-        self.algebra = FrequencyAlgebra(np.zeros(1))
-        self.algebra.s = np.concatenate([grid, [self.s_far, 2.0 * self.s_far]])
+        self.algebra = FrequencyAlgebra.at(np.concatenate([grid, [self.s_far, 2.0 * self.s_far]]))
         self.time_s = (np.arange(samples) * (self.period / samples))[:samples // 2]
         self.decay = 20.0 / self.period + self.sigma
+        # What every inversion on this contour shares: 1/s, the transforms 1/(s+a) and
+        # 1/(s+a)^2 of the carried part, and the exponentials that undo the shift.
+        self._per_s = 1.0 / grid
+        self._q1 = 1.0 / (grid + self.decay)
+        self._q2 = self._q1 * self._q1
+        self._grow = np.exp(self.sigma * self.time_s)
+        self._fade = np.exp(-self.decay * self.time_s)
 
     def invert(self, values: np.ndarray, integrations: int) -> np.ndarray:
-        """``values`` (on :attr:`algebra`) divided by s**integrations, back to time."""
+        """``values`` (on :attr:`algebra`, along the last axis; rows of variants allowed)
+        divided by s**integrations, back to time."""
         n = self.samples // 2 + 1
-        s = self.algebra.s[:n]
-        h1, h2 = values[n].real, values[n + 1].real
+        h1, h2 = values[..., n].real, values[..., n + 1].real
         h_inf = 2.0 * h2 - h1                          # H(inf), Richardson on two far points
         slope = 2.0 * self.s_far * (h1 - h2)           # lim s (H(s) - H(inf))
-        f0, df0 = (h_inf, slope) if integrations == 1 else (0.0, h_inf if integrations == 2 else 0.0)
-        if not (math.isfinite(f0) and math.isfinite(df0)):
-            f0, df0 = 0.0, 0.0
-        a = self.decay
-        c = df0 + a * f0
-        spectrum = values[:n] / s ** integrations - (f0 / (s + a) + c / (s + a) ** 2)
-        series = np.fft.irfft(spectrum * (self.samples / self.period), n=self.samples)[:n - 1]
-        t = self.time_s
-        return series * np.exp(self.sigma * t) + (f0 + c * t) * np.exp(-a * t)
+        zero = 0.0 * h1
+        f0, df0 = (h_inf, slope) if integrations == 1 else (zero, h_inf if integrations == 2 else zero)
+        usable = np.isfinite(f0) & np.isfinite(df0)
+        f0 = np.where(usable, f0, 0.0)[..., None]
+        c = np.where(usable, df0, 0.0)[..., None] + self.decay * f0
+        divided = values[..., :n] * self._per_s
+        for _ in range(integrations - 1):
+            divided = divided * self._per_s
+        spectrum = (divided - (f0 * self._q1 + c * self._q2)) * (self.samples / self.period)
+        series = np.fft.irfft(spectrum, n=self.samples, axis=-1)[..., :n - 1]
+        return series * self._grow + (f0 + c * self.time_s) * self._fade
 
 
 def step_figures(t: np.ndarray, y: np.ndarray) -> tuple[float, float, float, float]:

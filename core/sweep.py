@@ -47,10 +47,8 @@ from core.loops import CascadeModel, FrequencyAlgebra
 # The margin rules are core.margins' own: its constants and row-wise helpers are used as they are,
 # so the vectorised sweep stays the scalar analysis applied to many variants.
 from core.margins import _CONVERGED as M_CONVERGED
-from core.margins import (_DIP_ROUNDS, _REFINE_MAX_STEPS, _REFINE_STEPS, LOOPS, falsi_point, falsi_update,
-                          grid_span_hz, log_grid_hz, loop_margins)
-from core.margins import _narrow as _narrow_rows
-from core.margins import _parabola_vertex as _vertex_rows
+from core.margins import (_DIP_MAX_ROUNDS, _REFINE_MAX_STEPS, LOOPS, dip_after_probe, dip_probe_points, dip_step,
+                          falsi_point, falsi_update, grid_span_hz, log_grid_hz, loop_margins, residuals)
 from core.responses import response_horizon_s
 from core.tolerances import DESCRIPTIONS, PARAMETERS, Tolerances, factor_dict
 
@@ -349,14 +347,6 @@ def _full(x, shape):
     return np.broadcast_to(np.asarray(x, dtype=complex), shape)
 
 
-def _residual(kind: str, ol, cl, ref):
-    if kind == "gain":
-        return np.log(np.abs(ol))
-    if kind == "phase":
-        return np.angle(-ol)
-    return np.log(np.abs(cl)) - ref
-
-
 def _group_min(groups: np.ndarray, values: np.ndarray, size: int):
     """Per group: the smallest value and the position (in ``values``) where it was found (-1 for none)."""
     best = np.full(size, np.inf)
@@ -474,8 +464,10 @@ def _finish(vaxis: VariantAxis, gains: GainSet, stages: list) -> dict:
     turns = [cat([st.turns[li] for st in stages]) for li in range(3)]
     dips = [(cat([st.dips[li][0] for st in stages]), cat([st.dips[li][1] for st in stages])) for li in range(3)]
 
-    # Bracketed secant / Illinois steps on log(w) for every bracket of every variant at once (as core.margins:
-    # a few steps for all, then on only with the brackets not yet converged).
+    # Every bracket of every variant at once, refined to core.margins' tolerance by
+    # bracketed secant / Illinois steps on log(w) from the grid bracket. (core.margins
+    # probes each bracket first, which saves rounds where a round's cost is overhead;
+    # over many variants a round's cost is the arithmetic, and the probes would add to it.)
     x, at = b.copy(), np.zeros(len(bv), complex)
     prev, fprev = a.copy(), fa.copy()
     active = np.arange(len(bv))
@@ -486,27 +478,42 @@ def _finish(vaxis: VariantAxis, gains: GainSet, stages: list) -> dict:
         xa = falsi_point(aa, ba, faa, fba, prev[active], fprev[active])
         la, ka = bl[active], bk[active]
         ol_b, cl_b = _evaluate_brackets(vaxis, gains, bv[active], la, ka, np.exp(xa))
-        fxa = np.where(ka == 0, np.log(np.abs(ol_b)),
-                       np.where(ka == 1, np.angle(-ol_b), np.log(np.abs(cl_b)) - ref[active]))
+        fxa = residuals(ka, ol_b, cl_b, ref[active])
         x[active], at[active] = xa, ol_b
         a[active], b[active], fa[active], fb[active], prev[active], fprev[active] = falsi_update(
             aa, ba, faa, fba, xa, fxa)
-        if step + 1 >= _REFINE_STEPS:
-            active = active[np.abs(fxa) > _CONVERGED]
+        active = active[(np.abs(fxa) > _CONVERGED) & (np.abs(b[active] - a[active]) > 1e-12)]
     w_ref = np.exp(x)
 
     # Sensitivity peaks (as core.margins): the three deepest local minima of |1 + L| per
-    # variant, each narrowed by successive parabolic interpolation in log(w).
-    for _ in range(_DIP_ROUNDS):
-        vertices = np.concatenate([_vertex_rows(dx.reshape(-1, 3), dy.reshape(-1, 3)).reshape(v, 3)
-                                   for dx, dy in dips], axis=1)   # (V, 9)
-        extra, _ = _evaluate(vaxis, gains, 1j * np.exp(vertices))
-        extra = [_full(e, vertices.shape) for e in extra]
+    # variant, probed at four points each, then narrowed until each minimum is found.
+    def distances(li, variants, points):
+        """log |1 + L| of loop ``li`` at (len(variants), k) points, each variant's model
+        built only as far as that loop needs."""
+        model = CascadeModel(vaxis.take(variants), gains, VariantAlgebra(1j * np.exp(points)))
+        return np.log(np.abs(1.0 + _full(getattr(model, f"{LOOPS[li]}_open"), points.shape)))
+
+    everyone = np.arange(v)
+    state = []                                                     # (x, y, next point, prediction) per loop
+    for li, (dx, dy) in enumerate(dips):
+        probes = dip_probe_points(dx.reshape(-1, 3))
+        yp = distances(li, everyone, probes.reshape(v, -1)).reshape(-1, 4)
+        state.append(dip_after_probe(dx.reshape(-1, 3), dy.reshape(-1, 3), probes, yp))
+    open_rows = [np.ones(3 * v, bool) for _ in range(3)]
+    for rounds in range(1, _DIP_MAX_ROUNDS + 1):
         for li in range(3):
-            cols = slice(3 * li, 3 * li + 3)
-            nx, ny = _narrow_rows(dips[li][0].reshape(-1, 3), dips[li][1].reshape(-1, 3),
-                                  vertices[:, cols].reshape(-1), np.log(np.abs(1.0 + extra[li][:, cols])).reshape(-1))
-            dips[li] = (nx.reshape(v, 3, 3), ny.reshape(v, 3, 3))
+            rows = np.nonzero(open_rows[li])[0]
+            if not len(rows):
+                continue
+            x_, y_, nxt, pred = (np.array(part) for part in state[li])
+            variants = np.unique(rows // 3)
+            dist = np.full((v, 3), np.nan)
+            dist[variants] = distances(li, variants, nxt.reshape(v, 3)[variants])
+            x_[rows], y_[rows], nxt[rows], pred[rows], done = dip_step(
+                x_[rows], y_[rows], nxt[rows], dist.reshape(-1)[rows], pred[rows], rounds)
+            state[li] = (x_, y_, nxt, pred)
+            open_rows[li][rows[done]] = False
+    dips = [(st[0].reshape(v, 3, 3), st[1].reshape(v, 3, 3)) for st in state]
 
     out = {}
     rows_v = np.arange(v)
@@ -816,24 +823,6 @@ _WORST_METRICS = (("phase_margin_deg", False), ("gain_margin_db", False), ("sens
                   ("bandwidth_hz", False), ("delay_margin_s", False))
 
 
-def _invert_rows(contour, values: np.ndarray, integrations: int = 1) -> np.ndarray:
-    """:meth:`core.responses._Contour.invert` applied to each row of ``values`` (V, K)."""
-    n = contour.samples // 2 + 1
-    s = contour.algebra.s[:n]
-    h1, h2 = values[:, n].real, values[:, n + 1].real
-    h_inf = 2.0 * h2 - h1
-    slope = 2.0 * contour.s_far * (h1 - h2)
-    f0, df0 = (h_inf, slope) if integrations == 1 else (np.zeros_like(h1), h_inf if integrations == 2 else 0 * h1)
-    bad = ~(np.isfinite(f0) & np.isfinite(df0))
-    f0, df0 = np.where(bad, 0.0, f0), np.where(bad, 0.0, df0)
-    a = contour.decay
-    c = df0 + a * f0
-    spectrum = values[:, :n] / s ** integrations - (f0[:, None] / (s + a) + c[:, None] / (s + a) ** 2)
-    series = np.fft.irfft(spectrum * (contour.samples / contour.period), n=contour.samples, axis=1)[:, :n - 1]
-    t = contour.time_s
-    return series * np.exp(contour.sigma * t) + (f0[:, None] + c[:, None] * t) * np.exp(-a * t)
-
-
 def _step_chunk(vaxis, gains, horizons, load_torque, samples):
     """Step responses of each closed loop and the load-step speed, (V, samples/2) each."""
     from core.responses import _Contour
@@ -844,7 +833,7 @@ def _step_chunk(vaxis, gains, horizons, load_torque, samples):
         contour = _Contour(horizons[key], samples, 0.0)
         model = CascadeModel(vaxis, gains, VariantAlgebra(contour.algebra.s))
         h = model.position_disturbance_speed * load_torque if key == "load" else getattr(model, f"{key}_closed")
-        steps[key] = (contour.time_s, _invert_rows(contour, _full(h, (v, len(contour.algebra.s)))))
+        steps[key] = (contour.time_s, contour.invert(_full(h, (v, len(contour.algebra.s))), 1))
     return steps
 
 
