@@ -4,7 +4,8 @@ and the move simulation when the core has it. Items are created once and fed wit
 from __future__ import annotations
 
 import pyqtgraph as pg
-from PySide6.QtWidgets import QComboBox, QGraphicsScene, QHBoxLayout, QLabel, QTabWidget, QVBoxLayout, QWidget
+from PySide6.QtWidgets import (QComboBox, QGraphicsItem, QGraphicsScene, QGraphicsTextItem, QHBoxLayout, QLabel,
+                               QTabWidget, QVBoxLayout, QWidget)
 
 from app.flag_kinds import flag_kind
 from app.panels.comparison_table import ComparisonTable
@@ -16,6 +17,23 @@ from app.session import Session
 from app.theme import CARD
 
 LOOPS = ("current", "speed", "position")
+
+
+def _loop_inputs(axis, gains) -> dict:
+    """What each loop's step and Bode plots depend on: the axis, the gains of the loop and
+    of the loops inside it, and the position gain (it sets the frequency grid)."""
+    grid = gains.position.kp_per_s
+    return {"current": (axis, gains.current, grid), "speed": (axis, gains.current, gains.speed, grid),
+            "position": (axis, gains)}
+
+
+def _cache_text(view: pg.GraphicsLayoutWidget) -> None:
+    """Keep every text of a view (titles, axis labels, annotations) as a pixmap: laying a
+    text out again on every repaint costs more than the curves; a text that changes
+    re-renders its own pixmap."""
+    for item in view.scene().items():
+        if isinstance(item, QGraphicsTextItem):
+            item.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
 
 
 def _layout_widget(name: str) -> pg.GraphicsLayoutWidget:
@@ -83,6 +101,9 @@ class PlotsPanel(QTabWidget):
         self.held = False
         self.selected = None
         self.update_count = 0
+        self._shown: dict = {}
+        for view in (self.loops_view, self.disturbance_view):
+            _cache_text(view)
         session.results_ready.connect(self.show_results)
         session.preset_loaded.connect(self._preset_loaded)
         if session.analysis is not None:
@@ -110,12 +131,20 @@ class PlotsPanel(QTabWidget):
         return self.move is not None and self.currentWidget() is self.move_page
 
     def show_results(self, analysis) -> None:
-        """Feed every plot the new result (setData only) and colour what the flags point at."""
+        """Feed the plots the new result (setData only) and colour what the flags point at.
+
+        A loop's plots are left as they are when nothing it depends on changed (dragging
+        a speed gain leaves the current loop's step and Bode plots alone), so Qt does not
+        repaint them either.
+        """
         self.update_count += 1
         axis = self.session.axis
+        shown = _loop_inputs(axis, self.session.gains)
         for loop in LOOPS:
-            self.steps[loop].update(analysis)
-            self.bode[loop].update(analysis, axis)
+            if shown[loop] != self._shown.get(loop):
+                self.steps[loop].update(analysis)
+                self.bode[loop].update(analysis, axis)
+        self._shown = shown
         self.load_step.update(analysis)
         self.stiffness.update(analysis, axis)
         self._alerts(analysis.flags)

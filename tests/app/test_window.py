@@ -26,3 +26,21 @@ def test_repaint_full_window_200_times(window, qtbot):
         QApplication.processEvents()
     assert s.analysis is not None
     assert window.plots.update_count > 100
+
+
+def test_a_speed_gain_leaves_the_current_loop_plots_alone(window):
+    """Dragging speed Kp redraws the speed and position plots and not the current loop's,
+    whose inputs did not change; a current gain redraws all three."""
+    s = window.session
+    plots = window.plots
+    before = {loop: plots.bode[loop].mag_curve.yData for loop in ("current", "speed", "position")}
+    slider = window.gains_panel.controls["speed.kp"].slider
+    slider.setValue(slider.value() + 5)
+    s.flush()
+    after = {loop: plots.bode[loop].mag_curve.yData for loop in ("current", "speed", "position")}
+    assert after["current"] is before["current"]
+    assert after["speed"] is not before["speed"] and after["position"] is not before["position"]
+    slider = window.gains_panel.controls["current.kp"].slider
+    slider.setValue(slider.value() + 5)
+    s.flush()
+    assert plots.bode["current"].mag_curve.yData is not after["current"]
