@@ -425,14 +425,14 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
     -------
     (dict of str -> LoopMargins, FrequencyData)
     """
-    if omega is None:
+    default_grid = omega is None
+    if default_grid:
         omega = frequency_grid(axis, gains)
-        grid_algebra = _grid_algebra(axis, gains.position.kp_per_s)
-    else:
-        grid_algebra = FrequencyAlgebra(np.concatenate([omega, omega[-1] * _TAIL]))
     ev = _Evaluator(axis, gains)
     # One evaluation: the grid plus a tail to 100x its top for the Nyquist count.
     tail = omega[-1] * _TAIL
+    grid_algebra = (_grid_algebra(axis, gains.position.kp_per_s) if default_grid
+                    else FrequencyAlgebra(np.concatenate([omega, tail])))
     grid_model = CascadeModel(axis, gains, grid_algebra)
     ols_all, cls_all = _loop_arrays(grid_model)
     n = len(omega)

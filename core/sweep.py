@@ -505,13 +505,12 @@ def _finish(vaxis: VariantAxis, gains: GainSet, stages: list) -> dict:
             rows = np.nonzero(open_rows[li])[0]
             if not len(rows):
                 continue
-            x_, y_, nxt, pred = (np.array(part) for part in state[li])
+            x_, y_, nxt, pred = state[li]                           # updated in place, row by row
             variants = np.unique(rows // 3)
             dist = np.full((v, 3), np.nan)
             dist[variants] = distances(li, variants, nxt.reshape(v, 3)[variants])
             x_[rows], y_[rows], nxt[rows], pred[rows], done = dip_step(
                 x_[rows], y_[rows], nxt[rows], dist.reshape(-1)[rows], pred[rows], rounds)
-            state[li] = (x_, y_, nxt, pred)
             open_rows[li][rows[done]] = False
     dips = [(st[0].reshape(v, 3, 3), st[1].reshape(v, 3, 3)) for st in state]
 
