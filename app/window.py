@@ -258,15 +258,29 @@ def main_window(preset: Preset | None = None, settings: QSettings | None = None)
     return MainWindow(session, settings)
 
 
+def _starting_notice() -> QLabel:
+    """A small note shown while the first analysis runs: the first start after an install
+    compiles the numerical kernels (about 11 s here, then about 0.5 s from the disk cache)."""
+    notice = QLabel("Loopwright is starting.\n\nThe first start after installing compiles the "
+                    "numerical kernels, which takes a few seconds; later starts are quick.")
+    notice.setWindowFlags(Qt.WindowType.SplashScreen | Qt.WindowType.FramelessWindowHint)
+    notice.setMargin(24)
+    notice.show()
+    QApplication.processEvents()
+    return notice
+
+
 def run(preset_path: str | None = None) -> int:
     """Open the window (on the demo preset or ``preset_path``), show the caution, run; exit code."""
     app = _application()
     warmup.start()
+    notice = _starting_notice()
     window = main_window()
     if preset_path:
         if not window.open_path(preset_path, ask=False):
             print(f"loopwright: could not open {preset_path}; showing the demo preset", file=sys.stderr)
     window.show()
+    notice.close()
     if caution_needed(window.settings):
         QTimer.singleShot(0, lambda: show_caution(window, window.settings))
     return app.exec()

@@ -7,14 +7,13 @@
 from __future__ import annotations
 
 import math
-from functools import lru_cache
 from dataclasses import dataclass
 
 import numpy as np
 
 from core.axis import Axis
 from core.flags import Targets, margin_flags, quantisation_flags, step_flags
-from core.gains import PI, CurrentGains, GainSet, PositionGains, SpeedGains
+from core.gains import GainSet
 from core.margins import LOOPS, FrequencyData, LoopMargins, loop_margins
 from core.motor import ConstantsCheck
 from core.responses import (LoadStepResponse, StepResponse, position_and_load_step, response_horizon_s,
@@ -105,7 +104,7 @@ def _analyse(axis: Axis, gains: GainSet, targets: Targets, constants: ConstantsC
     steps = {}
     fallback = 10.0 * axis.mechanical_time_constant_s
     horizon, growth = _horizon(margins["current"], integral["current"], fallback)
-    steps["current"] = _current_step(axis, gains.current, horizon, growth)
+    steps["current"] = _current_step(axis, gains, horizon, growth)
     horizon, growth = _horizon(margins["speed"], integral["speed"], fallback)
     steps["speed"] = step_response(axis, gains, "speed", horizon, growth)
     load_torque = targets.load_step_nm if math.isfinite(targets.load_step_nm) else default_load_step_nm(axis)
@@ -121,14 +120,22 @@ def _analyse(axis: Axis, gains: GainSet, targets: Targets, constants: ConstantsC
     return Analysis(margins, freq, steps, load, omega / (2 * math.pi), stiffness, tuple(flags))
 
 
-@lru_cache(maxsize=8)
-def _current_step(axis: Axis, current: CurrentGains, horizon: float, growth: float) -> StepResponse:
-    """The current loop's step: it depends on the axis and the current gains only, so
-    moving a speed or position gain reuses it (arrays read-only)."""
-    placeholder = GainSet(current, SpeedGains(PI(1.0)), PositionGains(1.0), name="current loop only")
-    step = step_response(axis, placeholder, "current", horizon, growth)
-    step.time_s.setflags(write=False)
-    step.value.setflags(write=False)
+_CURRENT_STEPS: dict = {}
+_CURRENT_STEPS_SIZE = 8
+
+
+def _current_step(axis: Axis, gains: GainSet, horizon: float, growth: float) -> StepResponse:
+    """The current loop's step. It depends on the axis and the current gains only, so
+    moving a speed or position gain reuses it (arrays read-only); it is computed from
+    the whole gain set's recorded cascade, which the margins have just recorded."""
+    key = (axis, gains.current, horizon, growth)
+    step = _CURRENT_STEPS.get(key)
+    if step is None:
+        if len(_CURRENT_STEPS) >= _CURRENT_STEPS_SIZE:
+            _CURRENT_STEPS.clear()
+        step = _CURRENT_STEPS[key] = step_response(axis, gains, "current", horizon, growth)
+        step.time_s.setflags(write=False)
+        step.value.setflags(write=False)
     return step
 
 

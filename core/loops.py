@@ -1,11 +1,14 @@
 """The cascade written once: current, speed and position loops over any algebra.
 
-The same formulas serve two purposes:
+The same formulas serve three purposes:
 
 * :class:`FrequencyAlgebra` evaluates every block at complex frequencies with the
-  delays exact (``exp(-s Td)``): that is what margins, Bode plots and the linear
-  time responses are computed from. Evaluating at ``s = sigma + j w`` also serves
-  the Nyquist count and the numerical Laplace inversion in :mod:`core.responses`.
+  delays exact (``exp(-s Td)``), as numpy arrays (the tolerance sweep evaluates
+  variants this way, and the tests hold the other two against it).
+* :class:`core.tape.TapeAlgebra` records the same operations once per gain set and
+  replays them compiled at any ``s = sigma + j w``: what the margins, the Bode plots,
+  the Nyquist count and the numerical Laplace inversion in :mod:`core.responses` are
+  computed from.
 * :class:`ControlAlgebra` builds python-control transfer functions with the delays
   replaced by Pade approximants of a stated order, for interop and as a reference.
 

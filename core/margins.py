@@ -31,7 +31,7 @@ import numpy as np
 from core.axis import Axis
 from core.gains import GainSet
 from core import search_kernels
-from core.loops import CascadeModel, FrequencyAlgebra
+from core.tape import LOOP_OUTPUTS, OUTPUTS, cascade_tape
 from core.search_kernels import PROBES, dip_after_probe, falsi_point, falsi_update, probe_seed
 
 LOOPS = ("current", "speed", "position")
@@ -142,11 +142,12 @@ def _grid(axis: Axis, position_kp_per_s: float) -> np.ndarray:
 
 
 @lru_cache(maxsize=32)
-def _grid_algebra(axis: Axis, position_kp_per_s: float) -> FrequencyAlgebra:
-    """The default grid and its Nyquist tail as one algebra, kept between recomputes so
-    that the blocks no gain touches (mechanics, armature, filters, delays) are evaluated once."""
+def _grid_points(axis: Axis, position_kp_per_s: float) -> np.ndarray:
+    """s = j w over the default grid and its Nyquist tail, 1/s (read-only, shared)."""
     omega = _grid(axis, position_kp_per_s)
-    return FrequencyAlgebra(np.concatenate([omega, omega[-1] * _TAIL]))
+    s = 1j * np.concatenate([omega, omega[-1] * _TAIL])
+    s.setflags(write=False)
+    return s
 
 
 @dataclass(frozen=True)
@@ -163,22 +164,19 @@ class FrequencyData:
     dynamic_compliance: np.ndarray
 
 
-def _loop_arrays(model: CascadeModel) -> tuple[list, list]:
-    return ([model.current_open, model.speed_open, model.position_open],
-            [model.current_closed, model.speed_closed, model.position_closed])
-
-
 class _Evaluator:
-    """Evaluates all three loops at arbitrary points of the jw axis (or any s)."""
+    """Evaluates all three loops at arbitrary points of the jw axis (or any s), from the
+    recorded cascade (:mod:`core.tape`): open loops in rows 0-2, closed loops in rows 3-5."""
 
     def __init__(self, axis: Axis, gains: GainSet):
-        self.axis, self.gains = axis, gains
+        self.tape = cascade_tape(axis, gains)
 
     def at_omega(self, omega):
-        return _loop_arrays(CascadeModel(self.axis, self.gains, FrequencyAlgebra(omega)))
+        values = self.at_s(1j * np.asarray(omega, dtype=float))
+        return values[:3], values[3:]
 
     def at_s(self, s):
-        return _loop_arrays(CascadeModel(self.axis, self.gains, FrequencyAlgebra.at(s)))
+        return self.tape.evaluate(s, LOOP_OUTPUTS)
 
 
 def probe_points(a, b) -> np.ndarray:
@@ -198,93 +196,72 @@ def dip_step(x, y, v, yv, predicted, rounds: int):
 
 
 def residuals(kind, ol, cl, ref):
-    """Crossing residuals by kind code (0 gain: log|L|, 1 phase: arg(-L), 2 bandwidth: log|T| - ref)."""
+    """Crossing residuals over arrays by kind code (as :func:`core.search_kernels.residual`:
+    0 gain: log|L|, 1 phase: arg(-L), 2 bandwidth: log|T| - ref)."""
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(kind == 0, np.log(np.abs(ol)),
                         np.where(kind == 1, np.angle(-ol), np.log(np.abs(cl)) - ref))
 
 
-_KIND_CODES = {"gain": 0, "phase": 1, "bw": 2}
-
-
 class _Crossings:
     """Bracketed root searches on log(w) for many brackets at once.
 
-    A bracket is (loop index, kind, w_lo, w_hi, r_lo, r_hi, ref) with residuals of
-    opposite sign at its ends; kinds are "gain" (log|L|), "phase" (arg(-L)) and "bw"
-    (log|T| - ref). A new bracket is first sampled at ``PROBES`` interior points, which
-    narrow it and give a root estimate (:func:`probe_seed`); from then on each round
-    evaluates one point per bracket (the estimate, then bracketed secant / Illinois
-    steps) until the residual is below ``_CONVERGED``, at most ``_REFINE_MAX_STEPS``.
+    Brackets are arrays (loop index, kind, w_lo, w_hi, r_lo, r_hi, ref) with residuals
+    of opposite sign at the ends; kinds are :data:`core.search_kernels.GAIN` (log|L|),
+    ``PHASE`` (arg(-L)) and ``BANDWIDTH`` (log|T| - ref). A new bracket is first sampled
+    at ``PROBES`` interior points, which narrow it and give a root estimate
+    (:func:`probe_seed`); from then on each round evaluates one point per bracket (the
+    estimate, then bracketed secant / Illinois steps) until the residual is below
+    ``_CONVERGED``, at most ``_REFINE_MAX_STEPS``.
     """
 
     def __init__(self):
-        self.loop = np.zeros(0, int)
-        self.kind = np.zeros(0, int)
+        self.loop = self.kind = self.steps = self.probing = self.active = np.zeros(0, np.int64)
         self.a = self.b = self.fa = self.fb = self.ref = self.x = self.prev = self.fprev = np.zeros(0)
         self.pending = np.zeros(0)
-        self.steps = np.zeros(0, int)
         self.values = np.zeros((3, 0), complex)
-        self.probing = np.zeros(0, int)
-        self.active = np.zeros(0, int)
-        self._round = None
+        self._points = None
 
     @property
     def busy(self) -> bool:
         """Whether any bracket still needs a round."""
         return bool(len(self.active) or len(self.probing))
 
-    def add(self, brackets: list) -> None:
-        """Start refining more brackets."""
-        if not brackets:
+    def add(self, loop, kind, w_lo, w_hi, r_lo, r_hi, ref) -> None:
+        """Start refining more brackets (arrays over brackets, w in rad/s)."""
+        n0, n = len(self.loop), len(loop)
+        if not n:
             return
-        n0 = len(self.loop)
-        col = list(zip(*brackets))
-        self.loop = np.concatenate([self.loop, np.array(col[0], int)])
-        self.kind = np.concatenate([self.kind, np.array([_KIND_CODES[k] for k in col[1]], int)])
-        self.a = np.concatenate([self.a, np.log(np.array(col[2], float))])
-        self.b = np.concatenate([self.b, np.log(np.array(col[3], float))])
-        self.fa = np.concatenate([self.fa, np.array(col[4], float)])
-        self.fb = np.concatenate([self.fb, np.array(col[5], float)])
-        self.ref = np.concatenate([self.ref, np.array(col[6], float)])
-        self.x = np.concatenate([self.x, self.b[n0:]])
-        self.prev = np.concatenate([self.prev, self.a[n0:]])
-        self.fprev = np.concatenate([self.fprev, self.fa[n0:]])
-        self.pending = np.concatenate([self.pending, np.full(len(brackets), np.nan)])
-        self.steps = np.concatenate([self.steps, np.zeros(len(brackets), int)])
-        self.values = np.concatenate([self.values, np.zeros((3, len(brackets)), complex)], axis=1)
-        self.probing = np.concatenate([self.probing, np.arange(n0, len(self.loop))])
+        a, b = np.log(w_lo), np.log(w_hi)
+        self.loop = np.concatenate([self.loop, loop])
+        self.kind = np.concatenate([self.kind, kind])
+        self.a, self.b = np.concatenate([self.a, a]), np.concatenate([self.b, b])
+        self.fa, self.fb = np.concatenate([self.fa, r_lo]), np.concatenate([self.fb, r_hi])
+        self.ref = np.concatenate([self.ref, ref])
+        self.x = np.concatenate([self.x, b])
+        self.prev, self.fprev = np.concatenate([self.prev, a]), np.concatenate([self.fprev, r_lo])
+        self.pending = np.concatenate([self.pending, np.full(n, np.nan)])
+        self.steps = np.concatenate([self.steps, np.zeros(n, np.int64)])
+        self.values = np.concatenate([self.values, np.zeros((3, n), complex)], axis=1)
+        self.probing = np.concatenate([self.probing, np.arange(n0, n0 + n)])
 
     def proposal(self) -> tuple[np.ndarray, np.ndarray]:
         """(points, log(rad/s); loop of each point): the probes of each new bracket, then
         one point per bracket being refined."""
-        p, i = self.probing, self.active
-        xp = probe_points(self.a[p], self.b[p]).ravel()
-        xi = falsi_point(self.a[i], self.b[i], self.fa[i], self.fb[i], self.prev[i], self.fprev[i])
-        xi = np.where(np.isnan(self.pending[i]), xi, self.pending[i])
-        self._round = (p, i, xi)
-        return np.concatenate([xp, xi]), np.concatenate([np.repeat(self.loop[p], PROBES), self.loop[i]])
+        x, owner = search_kernels.crossing_points(self.a, self.b, self.fa, self.fb, self.prev, self.fprev,
+                                                  self.pending, self.loop, self.probing, self.active)
+        self._points = x
+        return x, owner
 
     def update(self, ol: np.ndarray, cl: np.ndarray, all_ol: np.ndarray) -> None:
         """Take the loops' values at the proposed points (``ol``/``cl`` of each point's own
         loop; ``all_ol`` of all three loops, shape (3, n))."""
-        p, i, xi = self._round
-        n_probe = PROBES * len(p)
-        fx = residuals(np.concatenate([np.repeat(self.kind[p], PROBES), self.kind[i]]), ol, cl,
-                       np.concatenate([np.repeat(self.ref[p], PROBES), self.ref[i]]))
-        if n_probe:
-            (self.a[p], self.b[p], self.fa[p], self.fb[p],
-             self.pending[p]) = probe_seed(self.a[p], self.b[p], self.fa[p], self.fb[p], fx[:n_probe].reshape(-1, PROBES))
-        fi = fx[n_probe:]
-        self.values[:, i] = all_ol[:, n_probe:]
-        self.x[i] = xi
-        self.pending[i] = np.nan
-        (self.a[i], self.b[i], self.fa[i], self.fb[i],
-         self.prev[i], self.fprev[i]) = falsi_update(self.a[i], self.b[i], self.fa[i], self.fb[i], xi, fi)
-        self.steps[i] += 1
-        keep = (np.abs(fi) > _CONVERGED) & (np.abs(self.b[i] - self.a[i]) > 1e-12) & (self.steps[i] < _REFINE_MAX_STEPS)
-        self.active = np.concatenate([i[keep], p])
-        self.probing = np.zeros(0, int)
+        n_probe = PROBES * len(self.probing)
+        self.values[:, self.active] = all_ol[:, n_probe:]
+        self.active = search_kernels.crossing_update(
+            self.a, self.b, self.fa, self.fb, self.prev, self.fprev, self.pending, self.steps, self.x,
+            self.kind, self.ref, self.probing, self.active, self._points, ol, cl, _CONVERGED, _REFINE_MAX_STEPS)
+        self.probing = np.zeros(0, np.int64)
 
 
 class _Dips:
@@ -296,14 +273,9 @@ class _Dips:
     |1 + L| (sensitivity peaks).
     """
 
-    def __init__(self, omega: np.ndarray, ols: list):
-        triples = [_dip_brackets(omega, np.abs(1.0 + ol)) for ol in ols]
-        triples += [_dip_brackets(omega, 1.0 / np.abs(ol), only_above=1.0) for ol in ols]
-        self.x = np.concatenate([t[0] for t in triples])
-        self.y = np.concatenate([t[1] for t in triples])
+    def __init__(self, omega: np.ndarray, ols: np.ndarray):
+        self.x, self.y, self.owner, self.is_peak = search_kernels.grid_dips(omega, ols, 3)
         self.ends = (self.x[:, [0, 2]], self.y[:, [0, 2]])
-        self.owner = np.concatenate([np.full(len(t[0]), k % 3) for k, t in enumerate(triples)])
-        self.is_peak = np.concatenate([np.full(len(t[0]), k >= 3) for k, t in enumerate(triples)])
         self.probed = False
         self.rounds = 0
         self.active = np.zeros(0, int)
@@ -336,16 +308,19 @@ class _Dips:
          done) = dip_step(self.x[rows], self.y[rows], v, yv, self.predicted[rows], self.rounds)
         self.active = rows[~done]
 
-    def hidden_crossings(self) -> list:
-        """Gain-crossover brackets on both sides of each |L| peak found above 0 dB: from the
-        grid points beside the peak (below 0 dB) to its highest point."""
-        out = []
-        (x_ends, y_ends) = self.ends
-        for r in np.nonzero(self.is_peak & (self.y[:, 1] < 0.0))[0]:
-            top, r_top = math.exp(self.x[r, 1]), -self.y[r, 1]
-            out.append((int(self.owner[r]), "gain", math.exp(x_ends[r, 0]), top, -y_ends[r, 0], r_top, 0.0))
-            out.append((int(self.owner[r]), "gain", top, math.exp(x_ends[r, 1]), r_top, -y_ends[r, 1], 0.0))
-        return out
+    def hidden_crossings(self) -> tuple:
+        """Gain-crossover brackets (as :meth:`_Crossings.add` takes them) on both sides of
+        each |L| peak found above 0 dB: from the grid points beside the peak (below 0 dB)
+        to its highest point."""
+        r = np.nonzero(self.is_peak & (self.y[:, 1] < 0.0))[0]
+        if not len(r):
+            return ()
+        x_ends, y_ends = self.ends
+        top, r_top = np.exp(self.x[r, 1]), -self.y[r, 1]
+        pair = lambda left, right: np.column_stack([left, right]).ravel()
+        return (np.repeat(self.owner[r], 2), np.full(2 * len(r), search_kernels.GAIN),
+                pair(np.exp(x_ends[r, 0]), top), pair(top, np.exp(x_ends[r, 1])),
+                pair(-y_ends[r, 0], r_top), pair(r_top, -y_ends[r, 1]), np.zeros(2 * len(r)))
 
     def sensitivity_rows(self, loop: int) -> tuple[np.ndarray, np.ndarray]:
         """(w, |1 + L|) at the narrowed sensitivity dips of ``loop``."""
@@ -353,20 +328,9 @@ class _Dips:
         return np.exp(self.x[mine, 1]), np.exp(self.y[mine, 1])
 
 
-def _dip_brackets(omega: np.ndarray, distance: np.ndarray, count: int = 3, only_above: float = 0.0):
-    """Triples (log w, log distance) round the ``count`` deepest local minima of ``distance``.
-
-    With ``only_above``, only minima whose grid value exceeds it are taken (possibly none).
-    """
-    inner = search_kernels.deepest_minima(distance, count, only_above)
-    if len(inner) == 0:
-        return np.zeros((0, 3)), np.zeros((0, 3))
-    idx = inner[:, None] + np.array([-1, 0, 1])[None, :]
-    return np.log(omega[idx]), np.log(distance[idx])
-
-
-def _sign_changes(r: np.ndarray) -> np.ndarray:
-    return np.nonzero(np.signbit(r[:-1]) != np.signbit(r[1:]))[0]
+def _by_frequency(index: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """``index`` ordered by ``w[index]`` (ties keep their order)."""
+    return index[np.argsort(w[index], kind="stable")]
 
 
 def _wrap_deg(angle_rad):
@@ -375,12 +339,7 @@ def _wrap_deg(angle_rad):
     return 180.0 - np.mod(180.0 - d, 360.0)
 
 
-def _arg_change(values: np.ndarray) -> np.ndarray:
-    """Increments of arg(values) between neighbours, rad, each in (-pi, pi]."""
-    return np.angle(values[1:] / values[:-1])
-
-
-def nyquist_count(ev: _Evaluator, omega: np.ndarray, open_loops: list, arc_open_loops: list,
+def nyquist_count(ev: _Evaluator, omega: np.ndarray, open_loops: np.ndarray, arc_open_loops: np.ndarray,
                   max_passes: int = 6) -> list[float]:
     """Net change of arg(1 + L) round the Nyquist contour divided by 2 pi, per loop.
 
@@ -391,11 +350,9 @@ def nyquist_count(ev: _Evaluator, omega: np.ndarray, open_loops: list, arc_open_
     step turns arg(1 + L) by more than 1 rad the interval is subdivided.
     """
     w = omega.copy()
-    vals = [1.0 + ol for ol in open_loops]
+    vals = 1.0 + open_loops
     for _ in range(max_passes):
-        bad = np.zeros(len(w) - 1, dtype=bool)
-        for v in vals:
-            bad |= np.abs(_arg_change(v)) > 1.0
+        bad, upper = search_kernels.arg_steps(vals, 1.0)
         if not bad.any():
             break
         idx = np.nonzero(bad)[0]
@@ -403,13 +360,11 @@ def nyquist_count(ev: _Evaluator, omega: np.ndarray, open_loops: list, arc_open_
         new, _ = ev.at_omega(mids)
         order = np.argsort(np.concatenate([w, mids]), kind="stable")
         w = np.concatenate([w, mids])[order]
-        vals = [np.concatenate([v, 1.0 + n])[order] for v, n in zip(vals, new)]
-    turns = []
-    for v, a in zip(vals, arc_open_loops):
-        upper = _arg_change(v).sum()
-        around = _arg_change(1.0 + a).sum()
-        turns.append((2.0 * upper + around) / (2.0 * np.pi))
-    return turns
+        vals = np.concatenate([vals, 1.0 + new], axis=1)[:, order]
+    else:
+        _, upper = search_kernels.arg_steps(vals, 1.0)
+    _, around = search_kernels.arg_steps(1.0 + arc_open_loops, 1.0)
+    return list((2.0 * upper + around) / (2.0 * np.pi))
 
 
 def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) -> tuple[dict, FrequencyData]:
@@ -431,63 +386,37 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
     ev = _Evaluator(axis, gains)
     # One evaluation: the grid plus a tail to 100x its top for the Nyquist count.
     tail = omega[-1] * _TAIL
-    grid_algebra = (_grid_algebra(axis, gains.position.kp_per_s) if default_grid
-                    else FrequencyAlgebra(np.concatenate([omega, tail])))
-    grid_model = CascadeModel(axis, gains, grid_algebra)
-    ols_all, cls_all = _loop_arrays(grid_model)
+    s_grid = (_grid_points(axis, gains.position.kp_per_s) if default_grid
+              else 1j * np.concatenate([omega, tail]))
+    grid_values = ev.tape.evaluate(s_grid, OUTPUTS[:7])
+    ols_all, cls_all, compliance = grid_values[:3], grid_values[3:6], grid_values[6]
     n = len(omega)
-    ols = [o[:n] for o in ols_all]
-    cls = [c[:n] for c in cls_all]
-
-    brackets = []
-    for li in range(3):
-        ol, cl = ols[li], cls[li]
-        r_gain = np.log(np.abs(ol))
-        for k in _sign_changes(r_gain):
-            brackets.append((li, "gain", omega[k], omega[k + 1], r_gain[k], r_gain[k + 1], 0.0))
-        # arg L = -180 deg (mod 360) where L crosses the negative real axis.
-        im = ol.imag
-        k = np.nonzero((np.signbit(im[:-1]) != np.signbit(im[1:])) & (ol.real[:-1] + ol.real[1:] < 0))[0]
-        r0, r1 = np.angle(-ol[k]), np.angle(-ol[k + 1])
-        # A true crossing of the negative real axis has arg(-L) near 0 on both sides;
-        # a jump through +-pi is L passing the positive real axis instead.
-        true = (np.signbit(r0) != np.signbit(r1)) & (np.maximum(np.abs(r0), np.abs(r1)) < 0.5 * np.pi)
-        brackets += [(li, "phase", omega[j], omega[j + 1], a, b, 0.0)
-                     for j, a, b in zip(k[true].tolist(), r0[true].tolist(), r1[true].tolist())]
-        ref = math.log(abs(cl[0]) / math.sqrt(2.0))
-        r_bw = np.log(np.abs(cl)) - ref
-        below = np.nonzero(r_bw < 0)[0]
-        if len(below) and below[0] > 0:
-            k = below[0] - 1
-            brackets.append((li, "bw", omega[k], omega[k + 1], r_bw[k], r_bw[k + 1], ref))
+    ols, cls = grid_values[:3, :n], grid_values[3:6, :n]
     # Crossings are refined on the model itself; alongside, in the same evaluations, the
     # deepest dips of |1 + L| (sensitivity peaks) and the highest peaks of |L| below 1 (a
     # resonance that may poke through 0 dB between grid points) are narrowed, and the
     # first evaluation also carries the Nyquist arc round the origin.
     arc_s = omega[0] * _ARC
     crossings = _Crossings()
-    crossings.add(brackets)
+    crossings.add(*search_kernels.grid_brackets(omega, ols, cls))
     dips = _Dips(omega, ols)
     arc = None
     while arc is None or crossings.busy or not dips.done:
         (xc, lc), (xv, lv) = crossings.proposal(), dips.proposal()
         s_all = np.concatenate([1j * np.exp(xc), 1j * np.exp(xv), arc_s if arc is None else []])
-        ol_all, cl_all = ev.at_s(s_all)
-        ol_all = np.stack(np.broadcast_arrays(*ol_all))
+        values = ev.at_s(s_all)
+        ol_all, cl_all = values[:3], values[3:]
         nc, nv = len(xc), len(xv)
         if nc:
             pick = np.arange(nc)
-            cl_all = np.stack(np.broadcast_arrays(*cl_all))
             crossings.update(ol_all[lc, pick], cl_all[lc, pick], ol_all[:, :nc])
         if nv:
             was_done = dips.done
             dips.update(xv, ol_all[lv, nc + np.arange(nv)])
-            if dips.done and not was_done:
-                hidden = dips.hidden_crossings()
-                brackets += hidden
-                crossings.add(hidden)
+            if dips.done and not was_done and (hidden := dips.hidden_crossings()):
+                crossings.add(*hidden)
         if arc is None:
-            arc = list(ol_all[:, nc + nv:])
+            arc = ol_all[:, nc + nv:]
     refined, refined_ols = np.exp(crossings.x), crossings.values
 
     turns = nyquist_count(ev, np.concatenate([omega, tail]), ols_all, arc)
@@ -495,12 +424,10 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
     out = {}
     inner_unstable = 0
     for li, name in enumerate(LOOPS):
-        sel = [i for i, b in enumerate(brackets) if b[0] == li]
-        gw = sorted(refined[i] for i in sel if brackets[i][1] == "gain")
-        pw = sorted(refined[i] for i in sel if brackets[i][1] == "phase")
-        bw = [refined[i] for i in sel if brackets[i][1] == "bw"]
-        g_sel = sorted((i for i in sel if brackets[i][1] == "gain"), key=lambda i: refined[i])
-        p_sel = sorted((i for i in sel if brackets[i][1] == "phase"), key=lambda i: refined[i])
+        mine = crossings.loop == li
+        g_sel, p_sel, b_sel = (_by_frequency(np.nonzero(mine & (crossings.kind == kind))[0], refined)
+                               for kind in (search_kernels.GAIN, search_kernels.PHASE, search_kernels.BANDWIDTH))
+        gw, pw, bw = refined[g_sel], refined[p_sel], refined[b_sel]
         at = refined_ols[li]
         z = inner_unstable - turns[li]
         unstable = max(int(round(z)), 0)
@@ -516,7 +443,7 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         if len(pms):
             j = int(np.argmin(pms))
             pm, pm_w = float(pms[j]), gw[j]
-            delay_margin = float(np.min(lag_room / np.array(gw))) if stable else 0.0
+            delay_margin = float(np.min(lag_room / gw)) if stable else 0.0
         else:
             pm, pm_w, delay_margin = math.inf, math.nan, math.inf
         if len(gms):
@@ -525,14 +452,15 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
         else:
             gm, gm_w = math.inf, math.nan
         dip_w, dip_d = dips.sensitivity_rows(li)
-        candidates_w = np.concatenate([dip_w, np.array(gw + pw)])
-        candidates_d = np.concatenate([dip_d, np.abs(1.0 + at[g_sel + p_sel])])
+        both = np.concatenate([g_sel, p_sel])
+        candidates_w = np.concatenate([dip_w, refined[both]])
+        candidates_d = np.concatenate([dip_d, np.abs(1.0 + at[both])])
         j = int(np.argmin(candidates_d))
         ms, ms_w = float(1.0 / candidates_d[j]), float(candidates_w[j])
         out[name] = LoopMargins(
-            gain_crossovers_hz=tuple(float(w / (2 * math.pi)) for w in gw),
-            phase_crossovers_hz=tuple(float(w / (2 * math.pi)) for w in pw),
-            crossover_hz=float(gw[0] / (2 * math.pi)) if gw else math.nan,
+            gain_crossovers_hz=tuple((gw / (2 * math.pi)).tolist()),
+            phase_crossovers_hz=tuple((pw / (2 * math.pi)).tolist()),
+            crossover_hz=float(gw[0] / (2 * math.pi)) if len(gw) else math.nan,
             phase_margin_deg=pm,
             phase_margin_hz=float(pm_w / (2 * math.pi)),
             gain_margin_db=gm,
@@ -540,10 +468,10 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
             delay_margin_s=float(delay_margin),
             sensitivity_peak=ms,
             sensitivity_peak_hz=float(ms_w / (2 * math.pi)),
-            bandwidth_hz=float(bw[0] / (2 * math.pi)) if bw else math.nan,
+            bandwidth_hz=float(bw[0] / (2 * math.pi)) if len(bw) else math.nan,
             unstable_poles=unstable,
             stable=stable,
         )
     data = FrequencyData(omega, dict(zip(LOOPS, ols)), dict(zip(LOOPS, cls)),
-                         grid_model.dynamic_compliance[:n])
+                         compliance[:n])
     return out, data

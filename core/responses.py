@@ -22,12 +22,15 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
+from numba import njit
 
 from core.axis import Axis
 from core.gains import GainSet
-from core.loops import CascadeModel, FrequencyAlgebra
+from core.loops import FrequencyAlgebra
+from core.tape import cascade_tape
 
 SAMPLES = 1024
+_jit = njit(cache=True, error_model="numpy")
 _SIGMA_T = 10.0
 
 
@@ -130,60 +133,133 @@ class _Contour:
         self.samples = samples
         self.period = 2.0 * horizon_s
         self.sigma = _SIGMA_T / self.period + max(growth_per_s, 0.0)
-        k = np.arange(samples // 2 + 1)
         self.s_far = 50.0 * math.pi * samples / self.period + 10.0 * self.sigma
-        grid = self.sigma + 2j * math.pi * k / self.period
-        self.algebra = FrequencyAlgebra.at(np.concatenate([grid, [self.s_far, 2.0 * self.s_far]]))
-        self.time_s = (np.arange(samples) * (self.period / samples))[:samples // 2]
         self.decay = 20.0 / self.period + self.sigma
-        # What every inversion on this contour shares: 1/s, the transforms 1/(s+a) and
-        # 1/(s+a)^2 of the carried part, and the exponentials that undo the shift.
-        self._per_s = 1.0 / grid
-        self._q1 = 1.0 / (grid + self.decay)
-        self._q2 = self._q1 * self._q1
-        self._grow = np.exp(self.sigma * self.time_s)
-        self._fade = np.exp(-self.decay * self.time_s)
+        # With the contour, what every inversion on it shares: 1/s, the transforms 1/(s+a)
+        # and 1/(s+a)^2 of the carried part, and the exponentials that undo the shift.
+        (self.s, self.time_s, self._per_s, self._q1, self._q2, self._grow,
+         self._fade) = _contour(samples, self.period, self.sigma, self.s_far, self.decay)
+        self.algebra = FrequencyAlgebra.at(self.s)
 
     def invert(self, values: np.ndarray, integrations: int) -> np.ndarray:
         """``values`` (on :attr:`algebra`, along the last axis; rows of variants allowed)
         divided by s**integrations, back to time."""
         n = self.samples // 2 + 1
-        h1, h2 = values[..., n].real, values[..., n + 1].real
-        h_inf = 2.0 * h2 - h1                          # H(inf), Richardson on two far points
-        slope = 2.0 * self.s_far * (h1 - h2)           # lim s (H(s) - H(inf))
-        zero = 0.0 * h1
-        f0, df0 = (h_inf, slope) if integrations == 1 else (zero, h_inf if integrations == 2 else zero)
-        usable = np.isfinite(f0) & np.isfinite(df0)
-        f0 = np.where(usable, f0, 0.0)[..., None]
-        c = np.where(usable, df0, 0.0)[..., None] + self.decay * f0
-        divided = values[..., :n] * self._per_s
-        for _ in range(integrations - 1):
-            divided = divided * self._per_s
-        spectrum = (divided - (f0 * self._q1 + c * self._q2)) * (self.samples / self.period)
-        series = np.fft.irfft(spectrum, n=self.samples, axis=-1)[..., :n - 1]
-        return series * self._grow + (f0 + c * self.time_s) * self._fade
+        rows = np.ascontiguousarray(values, dtype=complex).reshape(-1, np.shape(values)[-1])
+        spectrum, f0, c = _spectrum(rows, n, self._per_s, self._q1, self._q2, self.s_far, integrations,
+                                    self.samples / self.period, self.decay)
+        series = np.fft.irfft(spectrum, n=self.samples, axis=-1)
+        out = _undo_shift(series, n - 1, self._grow, self._fade, self.time_s, f0, c)
+        return out.reshape(np.shape(values)[:-1] + (n - 1,))
+
+
+@_jit
+def _contour(samples, period, sigma, s_far, decay):
+    """The points ``sigma + j 2 pi k / period`` (k = 0 .. samples/2) and two far ones, the
+    first ``samples/2`` sample times, and the arrays the inversions share (see _Contour)."""
+    n, half = samples // 2 + 1, samples // 2
+    s = np.empty(n + 2, np.complex128)
+    per_s, q1, q2 = np.empty(n, np.complex128), np.empty(n, np.complex128), np.empty(n, np.complex128)
+    for k in range(n):
+        s[k] = sigma + 2j * math.pi * k / period
+        per_s[k] = 1.0 / s[k]
+        q1[k] = 1.0 / (s[k] + decay)
+        q2[k] = q1[k] * q1[k]
+    s[n], s[n + 1] = s_far, 2.0 * s_far
+    time_s, grow, fade = np.empty(half), np.empty(half), np.empty(half)
+    for k in range(half):
+        time_s[k] = k * (period / samples)
+        grow[k] = math.exp(sigma * time_s[k])
+        fade[k] = math.exp(-decay * time_s[k])
+    return s, time_s, per_s, q1, q2, grow, fade
+
+
+@_jit
+def _spectrum(values, n, per_s, q1, q2, s_far, integrations, scale, decay):
+    """The spectrum of ``f - q`` for each row, and each row's (f(0+), c) of ``q``.
+
+    ``f(0+)`` and the slope come from two far points (``values[:, n]``, ``values[:, n + 1]``)
+    by Richardson extrapolation: ``H(inf) = 2 H(2 s_far) - H(s_far)``,
+    ``lim s (H(s) - H(inf)) = 2 s_far (H(s_far) - H(2 s_far))``; they are dropped when
+    not finite.
+    """
+    rows = values.shape[0]
+    spectrum = np.empty((rows, n), dtype=np.complex128)
+    f0s, cs = np.empty(rows), np.empty(rows)
+    for r in range(rows):
+        h1, h2 = values[r, n].real, values[r, n + 1].real
+        h_inf = 2.0 * h2 - h1
+        if integrations == 1:
+            f0, df0 = h_inf, 2.0 * s_far * (h1 - h2)
+        elif integrations == 2:
+            f0, df0 = 0.0, h_inf
+        else:
+            f0, df0 = 0.0, 0.0
+        if not (math.isfinite(f0) and math.isfinite(df0)):
+            f0, df0 = 0.0, 0.0
+        c = df0 + decay * f0
+        for k in range(n):
+            divided = values[r, k] * per_s[k]
+            for _ in range(integrations - 1):
+                divided = divided * per_s[k]
+            spectrum[r, k] = (divided - (f0 * q1[k] + c * q2[k])) * scale
+        f0s[r], cs[r] = f0, c
+    return spectrum, f0s, cs
+
+
+@_jit
+def _undo_shift(series, n, grow, fade, time_s, f0, c):
+    """``series * exp(sigma t) + q(t)`` over the first ``n`` samples of each row."""
+    out = np.empty((series.shape[0], n))
+    for r in range(series.shape[0]):
+        for k in range(n):
+            out[r, k] = series[r, k] * grow[k] + (f0[r] + c[r] * time_s[k]) * fade[k]
+    return out
 
 
 def step_figures(t: np.ndarray, y: np.ndarray) -> tuple[float, float, float, float]:
-    """(final value, overshoot %, 10-90 % rise time s, 2 % settling time s) of a step trace."""
-    final = float(np.mean(y[-max(len(y) // 50, 1):]))
-    if not np.all(np.isfinite(y)) or final == 0.0:
+    """(final value, overshoot %, 10-90 % rise time s, 2 % settling time s) of a step trace.
+
+    The final value is the mean of the last 2 % of the trace; the settling time is NaN when
+    the trace leaves the 2 % band in its last two samples, the figures all NaN (but the
+    final value) when the trace is not finite or ends at 0.
+    """
+    return _step_figures(np.ascontiguousarray(t, dtype=float), np.ascontiguousarray(y, dtype=float))
+
+
+@_jit
+def _step_figures(t, y):
+    n = len(y)
+    tail = max(n // 50, 1)
+    final = 0.0
+    for k in range(n - tail, n):
+        final += y[k]
+    final /= tail
+    finite = True
+    for k in range(n):
+        finite = finite and math.isfinite(y[k])
+    if not finite or final == 0.0:
         return final, math.nan, math.nan, math.nan
-    peak = float(np.max(y) if final > 0 else np.min(y))
+    peak = y[0]
+    for k in range(n):
+        peak = max(peak, y[k]) if final > 0 else min(peak, y[k])
     overshoot = max(0.0, (peak - final) / final * 100.0)
-    rel = y / final
-    rise = math.nan
-    above10 = np.nonzero(rel >= 0.1)[0]
-    above90 = np.nonzero(rel >= 0.9)[0]
-    if len(above10) and len(above90):
-        rise = float(t[above90[0]] - t[above10[0]])
-    outside = np.nonzero(np.abs(rel - 1.0) > 0.02)[0]
-    if len(outside) == 0:
+    first10, first90, last_out = -1, -1, -1
+    for k in range(n):
+        rel = y[k] / final
+        if first10 < 0 and rel >= 0.1:
+            first10 = k
+        if first90 < 0 and rel >= 0.9:
+            first90 = k
+        if abs(rel - 1.0) > 0.02:
+            last_out = k
+    rise = t[first90] - t[first10] if first10 >= 0 and first90 >= 0 else math.nan
+    if last_out < 0:
         settle = 0.0
-    elif outside[-1] >= len(t) - 2:
+    elif last_out >= n - 2:
         settle = math.nan
     else:
-        settle = float(t[outside[-1] + 1])
+        settle = t[last_out + 1]
     return final, overshoot, rise, settle
 
 
@@ -207,10 +283,10 @@ def step_response(axis: Axis, gains: GainSet, loop: str, horizon_s: float,
 
     The position step is taken without feedforward (a step has no finite speed).
     """
-    attr = f"{loop}_closed"
-    t, y = inverse_laplace(lambda alg: getattr(CascadeModel(axis, gains, alg), attr),
-                           horizon_s, growth_per_s=growth_per_s)
-    return StepResponse(t, y, *step_figures(t, y))
+    contour = _Contour(horizon_s, SAMPLES, growth_per_s)
+    values, = cascade_tape(axis, gains).evaluate(contour.s, [f"{loop}_closed"])
+    y = contour.invert(values, 1)
+    return StepResponse(contour.time_s, y, *step_figures(contour.time_s, y))
 
 
 def load_step_response(axis: Axis, gains: GainSet, load_torque_nm: float, horizon_s: float,
@@ -229,9 +305,10 @@ def position_and_load_step(axis: Axis, gains: GainSet, load_torque_nm: float, ho
         The position loop's unit step (no feedforward) and the load-torque step.
     """
     contour = _Contour(horizon_s, SAMPLES, growth_per_s)
-    model = CascadeModel(axis, gains, contour.algebra)
-    y = contour.invert(model.position_closed, 1)
-    h = model.position_disturbance_speed * load_torque_nm
+    closed, disturbance = cascade_tape(axis, gains).evaluate(
+        contour.s, ["position_closed", "position_disturbance_speed"])
+    y = contour.invert(closed, 1)
+    h = disturbance * load_torque_nm
     speed = contour.invert(h, 1)
     position = contour.invert(h, 2)
     t = contour.time_s

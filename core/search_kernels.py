@@ -14,6 +14,7 @@ makes a division by zero give inf or NaN, as the numpy expressions did.
 
 from __future__ import annotations
 
+import cmath
 import math
 
 import numpy as np
@@ -308,3 +309,166 @@ def deepest_minima(d, count, only_above):
         taken[best] = True
         picked[p] = found[best]
     return picked
+
+
+# --- the grid scan and the crossing rounds of core.margins ------------------------------
+
+GAIN, PHASE, BANDWIDTH = 0, 1, 2
+"""Crossing kinds: log|L| = 0, arg(-L) = 0 (L on the negative real axis), log|T| = ref."""
+
+
+@_jit
+def residual(kind, ol, cl, ref):
+    """A crossing's residual: log|L| (gain), arg(-L) (phase) or log|T| - ref (bandwidth)."""
+    if kind == GAIN:
+        return math.log(abs(ol))
+    if kind == PHASE:
+        return cmath.phase(-ol)
+    return math.log(abs(cl)) - ref
+
+
+@_jit
+def grid_brackets(omega, ols, cls):
+    """Every crossing bracketed by neighbouring grid points, loop by loop: the gain
+    crossovers, the crossings of the negative real axis (a jump of arg(-L) through +-pi
+    is L passing the positive real axis instead, and is not one), then the first fall of
+    |T| 3 dB below its low-frequency value.
+
+    Returns
+    -------
+    (loop, kind, w_lo, w_hi, r_lo, r_hi, ref) : arrays over brackets, w in rad/s
+    """
+    n = len(omega)
+    cap = 3 * (2 * (n - 1) + 1)
+    loop, kind = np.empty(cap, np.int64), np.empty(cap, np.int64)
+    w_lo, w_hi, r_lo, r_hi, ref = np.empty(cap), np.empty(cap), np.empty(cap), np.empty(cap), np.zeros(cap)
+    m = 0
+    for li in range(ols.shape[0]):
+        for k in range(n - 1):
+            g0, g1 = math.log(abs(ols[li, k])), math.log(abs(ols[li, k + 1]))
+            if _negative(g0) != _negative(g1):
+                loop[m], kind[m], w_lo[m], w_hi[m], r_lo[m], r_hi[m] = li, GAIN, omega[k], omega[k + 1], g0, g1
+                m += 1
+        for k in range(n - 1):
+            z0, z1 = ols[li, k], ols[li, k + 1]
+            if _negative(z0.imag) != _negative(z1.imag) and z0.real + z1.real < 0:
+                p0, p1 = cmath.phase(-z0), cmath.phase(-z1)
+                if _negative(p0) != _negative(p1) and max(abs(p0), abs(p1)) < 0.5 * math.pi:
+                    loop[m], kind[m], w_lo[m], w_hi[m], r_lo[m], r_hi[m] = li, PHASE, omega[k], omega[k + 1], p0, p1
+                    m += 1
+        level = math.log(abs(cls[li, 0]) / math.sqrt(2.0))
+        for k in range(n):
+            if math.log(abs(cls[li, k])) - level < 0:
+                if k > 0:
+                    loop[m], kind[m], w_lo[m], w_hi[m] = li, BANDWIDTH, omega[k - 1], omega[k]
+                    r_lo[m] = math.log(abs(cls[li, k - 1])) - level
+                    r_hi[m] = math.log(abs(cls[li, k])) - level
+                    ref[m] = level
+                    m += 1
+                break
+    return loop[:m], kind[:m], w_lo[:m], w_hi[:m], r_lo[:m], r_hi[:m], ref[:m]
+
+
+@_jit
+def grid_dips(omega, ols, count):
+    """Triples (log w, log distance) round the ``count`` deepest dips of |1 + L| of each
+    loop, then round the highest peaks of |L| above 1 (dips of 1/|L|), loop by loop.
+
+    Returns
+    -------
+    (x, y, owner, is_peak) : triples (m, 3), the loop of each, and whether it is a peak of |L|
+    """
+    loops, n = ols.shape
+    cap = 2 * loops * count
+    x, y = np.empty((cap, 3)), np.empty((cap, 3))
+    owner, is_peak = np.empty(cap, np.int64), np.empty(cap, np.bool_)
+    distance = np.empty(n)
+    m = 0
+    for peaks in (False, True):
+        for li in range(loops):
+            for k in range(n):
+                distance[k] = 1.0 / abs(ols[li, k]) if peaks else abs(1.0 + ols[li, k])
+            for i in deepest_minima(distance, count, 1.0 if peaks else 0.0):
+                for j in range(3):
+                    x[m, j], y[m, j] = math.log(omega[i - 1 + j]), math.log(distance[i - 1 + j])
+                owner[m], is_peak[m] = li, peaks
+                m += 1
+    return x[:m], y[:m], owner[:m], is_peak[:m]
+
+
+@_jit
+def crossing_points(a, b, fa, fb, prev, fprev, pending, loop, probing, active):
+    """The points of one crossing round, log(rad/s), and the loop of each: ``PROBES``
+    interior points of every bracket being probed, then one point per bracket being
+    refined (its pending estimate, else the secant / regula-falsi point)."""
+    n_probe = PROBES * len(probing)
+    x = np.empty(n_probe + len(active))
+    owner = np.empty(len(x), np.int64)
+    for r in range(len(probing)):
+        i = probing[r]
+        for k in range(PROBES):
+            x[PROBES * r + k] = a[i] + (b[i] - a[i]) * PROBE_U[k + 1]
+            owner[PROBES * r + k] = loop[i]
+    xi = falsi_point(a[active], b[active], fa[active], fb[active], prev[active], fprev[active])
+    for r in range(len(active)):
+        i = active[r]
+        x[n_probe + r] = xi[r] if math.isnan(pending[i]) else pending[i]
+        owner[n_probe + r] = loop[i]
+    return x, owner
+
+
+@_jit
+def crossing_update(a, b, fa, fb, prev, fprev, pending, steps, x, kind, ref, probing, active, xs, ol, cl,
+                    converged, max_steps):
+    """Take one round's values (``ol``/``cl`` of each point's own loop, at the points of
+    :func:`crossing_points` ``xs``) into the bracket arrays, in place; returns the brackets
+    still to refine (those refined that have not converged, then those just probed)."""
+    n_probe = PROBES * len(probing)
+    f = np.empty(len(xs))
+    for r in range(len(probing)):
+        i = probing[r]
+        for k in range(PROBES):
+            j = PROBES * r + k
+            f[j] = residual(kind[i], ol[j], cl[j], ref[i])
+    for r in range(len(active)):
+        i = active[r]
+        j = n_probe + r
+        f[j] = residual(kind[i], ol[j], cl[j], ref[i])
+    if len(probing):
+        na, nb, nfa, nfb, seed = probe_seed(a[probing], b[probing], fa[probing], fb[probing],
+                                            f[:n_probe].reshape(-1, PROBES))
+        for r in range(len(probing)):
+            i = probing[r]
+            a[i], b[i], fa[i], fb[i], pending[i] = na[r], nb[r], nfa[r], nfb[r], seed[r]
+    xi, fi = xs[n_probe:], f[n_probe:]
+    na, nb, nfa, nfb, nprev, nfprev = falsi_update(a[active], b[active], fa[active], fb[active], xi, fi)
+    keep = np.empty(len(active) + len(probing), np.int64)
+    m = 0
+    for r in range(len(active)):
+        i = active[r]
+        a[i], b[i], fa[i], fb[i], prev[i], fprev[i] = na[r], nb[r], nfa[r], nfb[r], nprev[r], nfprev[r]
+        x[i], pending[i] = xi[r], math.nan
+        steps[i] += 1
+        if abs(fi[r]) > converged and abs(b[i] - a[i]) > 1e-12 and steps[i] < max_steps:
+            keep[m] = i
+            m += 1
+    for r in range(len(probing)):
+        keep[m] = probing[r]
+        m += 1
+    return keep[:m]
+
+
+@_jit
+def arg_steps(values, limit):
+    """Increments of arg(values) between neighbours along each row (each in (-pi, pi]):
+    whether any row turns by more than ``limit`` rad over each interval, and each row's sum."""
+    rows, n = values.shape
+    wide = np.zeros(n - 1, np.bool_)
+    total = np.zeros(rows)
+    for r in range(rows):
+        for k in range(n - 1):
+            step = cmath.phase(values[r, k + 1] / values[r, k])
+            total[r] += step
+            if abs(step) > limit:
+                wide[k] = True
+    return wide, total

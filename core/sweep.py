@@ -365,7 +365,7 @@ def _dip_brackets(omega: np.ndarray, d: np.ndarray, count: int = 3):
     """Per variant, triples (log w, log d) round the ``count`` deepest local minima of d (V, N).
 
     Rows with fewer minima repeat their deepest one, which changes no minimum; a row
-    with none uses its grid minimum (as :func:`core.margins._dip_brackets`).
+    with none uses its grid minimum (as :func:`core.search_kernels.grid_dips`).
     """
     v, n = d.shape
     inner = (d[:, 1:-1] <= d[:, :-2]) & (d[:, 1:-1] <= d[:, 2:])
