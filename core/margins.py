@@ -32,7 +32,7 @@ from core.axis import Axis
 from core.gains import GainSet
 from core import search_kernels
 from core.tape import LOOP_OUTPUTS, OUTPUTS, cascade_tape
-from core.search_kernels import PROBES, dip_after_probe, falsi_point, falsi_update, probe_seed
+from core.search_kernels import PROBES, dip_after_probe
 
 LOOPS = ("current", "speed", "position")
 POINTS_PER_DECADE = 80
@@ -210,7 +210,7 @@ class _Crossings:
     of opposite sign at the ends; kinds are :data:`core.search_kernels.GAIN` (log|L|),
     ``PHASE`` (arg(-L)) and ``BANDWIDTH`` (log|T| - ref). A new bracket is first sampled
     at ``PROBES`` interior points, which narrow it and give a root estimate
-    (:func:`probe_seed`); from then on each round evaluates one point per bracket (the
+    (:func:`core.search_kernels.probe_seed`); from then on each round evaluates one point per bracket (the
     estimate, then bracketed secant / Illinois steps) until the residual is below
     ``_CONVERGED``, at most ``_REFINE_MAX_STEPS``.
     """
@@ -389,7 +389,7 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
     s_grid = (_grid_points(axis, gains.position.kp_per_s) if default_grid
               else 1j * np.concatenate([omega, tail]))
     grid_values = ev.tape.evaluate(s_grid, OUTPUTS[:7])
-    ols_all, cls_all, compliance = grid_values[:3], grid_values[3:6], grid_values[6]
+    ols_all, compliance = grid_values[:3], grid_values[6]
     n = len(omega)
     ols, cls = grid_values[:3, :n], grid_values[3:6, :n]
     # Crossings are refined on the model itself; alongside, in the same evaluations, the

@@ -47,8 +47,9 @@ from core.loops import CascadeModel, FrequencyAlgebra
 # The margin rules are core.margins' own: its constants and row-wise helpers are used as they are,
 # so the vectorised sweep stays the scalar analysis applied to many variants.
 from core.margins import _CONVERGED as M_CONVERGED
-from core.margins import (_DIP_MAX_ROUNDS, _REFINE_MAX_STEPS, LOOPS, dip_after_probe, dip_probe_points, dip_step,
-                          falsi_point, falsi_update, grid_span_hz, log_grid_hz, loop_margins, residuals)
+from core.margins import (_DIP_MAX_ROUNDS, _REFINE_MAX_STEPS, LOOPS, dip_probe_points, dip_step, grid_span_hz,
+                          log_grid_hz, loop_margins, residuals)
+from core.search_kernels import dip_after_probe, falsi_point, falsi_update
 from core.responses import response_horizon_s
 from core.tolerances import DESCRIPTIONS, PARAMETERS, Tolerances, factor_dict
 

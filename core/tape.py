@@ -228,7 +228,6 @@ def _allocate(ops, output_ops):
 
     Returns (ops over registers, register count, the outputs' registers).
     """
-    index = {int(d): k for k, d in enumerate(ops[:, 1])}
     reads = lambda code, a, b: (a, b) if code in _BINARY else (a,) if code in _WITH_CONSTANT else ()
     last = {}
     for k, (code, _, a, b) in enumerate(ops):

@@ -13,7 +13,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt
 
 from app.plots.overlay import Overlay
-from app.plots.style import (DecadeRules, LOOP_PEN, NO_BORDER, SEVERITY_BORDER, SEVERITY_PEN, curve,
+from app.plots.style import (Annotation, DecadeRules, LOOP_PEN, NO_BORDER, SEVERITY_BORDER, SEVERITY_PEN, curve,
                              hline, pen, styled_plot, vline)
 from app.theme import LOOP_COLOURS, LOOP_TITLES, MUTED
 
@@ -65,12 +65,8 @@ class BodePlots:
         # Margin bars: GM from the curve up to 0 dB at the phase crossover; PM from -180 deg up to the curve.
         self.gm_bar = curve(mag, pen(LOOP_COLOURS[loop], 2), ignore_bounds=True)
         self.pm_bar = curve(phase, pen(LOOP_COLOURS[loop], 2), ignore_bounds=True)
-        self.mag_text = pg.TextItem("", color="#555", anchor=(1, 0))
-        self.mag_text.setParentItem(mag.vb)
-        self.phase_text = pg.TextItem("", color="#555", anchor=(1, 1))
-        self.phase_text.setParentItem(phase.vb)
-        mag.vb.sigResized.connect(self._place_text)
-        phase.vb.sigResized.connect(self._place_text)
+        self.mag_text = Annotation(mag.vb, "top-right")
+        self.phase_text = Annotation(phase.vb, "bottom-right")
         self._alerts: dict = {}
         self._f = self._db = self._deg = None
 
@@ -104,8 +100,8 @@ class BodePlots:
         fc = "—" if not math.isfinite(m.crossover_hz) else _hz(m.crossover_hz)
         gm = "∞" if not math.isfinite(m.gain_margin_db) else f"{m.gain_margin_db:.1f} dB"
         pm = "∞" if not math.isfinite(m.phase_margin_deg) else f"{m.phase_margin_deg:.1f}°"
-        self.mag_text.setText(f"fc {fc}   GM {gm}")
-        self.phase_text.setText(f"PM {pm}")
+        self.mag_text.set_text(f"fc {fc}   GM {gm}")
+        self.phase_text.set_text(f"PM {pm}")
         res = [axis.resonance_hz, axis.antiresonance_hz] if self.loop != "current" else []
         for i, line in enumerate(self.res_lines):
             fr = res[i % 2] if res else math.nan
@@ -134,10 +130,6 @@ class BodePlots:
             phases.append((x, deg))
         self.mag_overlay.show(names, mags)
         self.phase_overlay.show(names, phases)
-
-    def _place_text(self, *_) -> None:
-        self.mag_text.setPos(self.mag.vb.width() - 4, 2)
-        self.phase_text.setPos(self.phase.vb.width() - 4, self.phase.vb.height() - 2)
 
     def fit(self) -> None:
         if self._f is None:

@@ -6,7 +6,7 @@ import numpy as np
 import pyqtgraph as pg
 
 from app.plots.overlay import Overlay
-from app.plots.style import LOOP_PEN, NO_BORDER, SEVERITY_BORDER, curve, hline, styled_plot
+from app.plots.style import Annotation, LOOP_PEN, NO_BORDER, SEVERITY_BORDER, curve, hline, styled_plot
 
 
 class LoadStepPlots:
@@ -22,9 +22,7 @@ class LoadStepPlots:
         self.speed_curve = curve(speed, LOOP_PEN["speed"])
         self.position_curve = curve(position, LOOP_PEN["position"])
         self.speed_overlay, self.position_overlay = Overlay(speed, (-4, 4)), Overlay(position)
-        self.text = pg.TextItem("", color="#555", anchor=(1, 1))
-        self.text.setParentItem(speed.vb)
-        speed.vb.sigResized.connect(self._place_text)
+        self.text = Annotation(speed.vb, "bottom-right")
         self._data = None
         self._title = ""
 
@@ -37,7 +35,7 @@ class LoadStepPlots:
         if title != self._title:
             self._title = title
             self.speed.setTitle(title, size="9pt")
-        self.text.setText(f"dip {ls.speed_dip_rad_s:.3g} rad/s\nerror {ls.position_error_rad * 1e3:.3g} mrad")
+        self.text.set_text(f"dip {ls.speed_dip_rad_s:.3g} rad/s\nerror {ls.position_error_rad * 1e3:.3g} mrad")
 
     def compare(self, names, analyses) -> None:
         """Draw every compared set's load step together (no names: the active set alone)."""
@@ -51,9 +49,6 @@ class LoadStepPlots:
         self.position_curve.hide()
         self.speed_overlay.show(names, [(a.load_step.time_s, a.load_step.speed_rad_s) for a in analyses])
         self.position_overlay.show(names, [(a.load_step.time_s, a.load_step.position_rad) for a in analyses])
-
-    def _place_text(self, *_):
-        self.text.setPos(self.speed.vb.width() - 4, self.speed.vb.height() - 2)
 
     def fit(self) -> None:
         if self._data is None:

@@ -14,7 +14,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
 
 from app.plots.overlay import Overlay
-from app.plots.style import LOOP_PEN, NO_BORDER, SEVERITY_BORDER, curve, hline, pen, styled_plot
+from app.plots.style import Annotation, LOOP_PEN, NO_BORDER, SEVERITY_BORDER, curve, hline, pen, styled_plot
 from app.theme import LOOP_COLOURS, MUTED, SEVERITY_COLOURS
 
 
@@ -61,17 +61,10 @@ class MovePlots:
         self.v_cmd = curve(self.voltage, LOOP_PEN["current"])
         self.overlays = (Overlay(self.position, (-4, 4)), Overlay(self.current), Overlay(self.voltage))
         self._single = (self.error_curve, self.i_cmd, self.i_act, self.v_cmd, self.v_demand)
-        self.message = pg.TextItem("", color=SEVERITY_COLOURS["error"], anchor=(0, 0))
-        self.message.setParentItem(self.position.vb)
-        self.message.setPos(6, 4)
-        self.figures = pg.TextItem("", color="#555", anchor=(1, 0))
-        self.figures.setParentItem(self.current.vb)
-        self.current.vb.sigResized.connect(self._place)
+        self.message = Annotation(self.position.vb, "top-left", SEVERITY_COLOURS["error"])
+        self.figures = Annotation(self.current.vb, "top-right")
         self._ranges = None
         self._unit = None
-
-    def _place(self, *_):
-        self.figures.setPos(self.current.vb.width() - 4, 2)
 
     def update(self, result, axis) -> None:
         t = result.time_s
@@ -107,8 +100,8 @@ class MovePlots:
         for line, y in zip(self.v_limits, (v_lim, -v_lim)):
             line.setValue(y)
         diverged = math.isfinite(result.diverged_at_s)
-        self.message.setText(f"diverged at t = {result.diverged_at_s * 1e3:.3g} ms" if diverged else "")
-        self.figures.setText(f"peak {m.peak_current_a:.3g} A of {i_lim:.3g} A   "
+        self.message.set_text(f"diverged at t = {result.diverged_at_s * 1e3:.3g} ms" if diverged else "")
+        self.figures.set_text(f"peak {m.peak_current_a:.3g} A of {i_lim:.3g} A   "
                              f"I-sat {m.time_current_saturated_s * 1e3:.3g} ms   "
                              f"V-sat {m.time_voltage_saturated_s * 1e3:.3g} ms")
         self.current.vb.setBorder(SEVERITY_BORDER["error"] if m.time_current_saturated_s > 0 else NO_BORDER)
@@ -144,7 +137,7 @@ class MovePlots:
             overlay.show(names, data)
 
     def show_error(self, text: str) -> None:
-        self.message.setText(text)
+        self.message.set_text(text)
 
     def fit(self) -> None:
         if self._ranges is None:

@@ -13,7 +13,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
 
-from app.plots.style import pen
+from app.plots.style import Curve, pen
 from app.theme import CARD, COMPARE_STYLES, INK, RULE
 
 SLOTS = len(COMPARE_STYLES)
@@ -52,7 +52,7 @@ class Overlay:
         self.plot = plot
         self.curves = []
         for slot in range(SLOTS):
-            item = pg.PlotCurveItem(pen=compare_pen(slot), skipFiniteCheck=True)
+            item = Curve(pen=compare_pen(slot), skipFiniteCheck=True)
             item.setZValue(5 + SLOTS - slot)  # the first (baseline-side) set on top
             item.hide()
             plot.addItem(item)
@@ -99,7 +99,7 @@ class Overlay:
             self.legend.clear()
         self.names, self.data = (), []
 
-    def shown(self) -> list[pg.PlotCurveItem]:
+    def shown(self) -> list[Curve]:
         """The curves on screen now (tests and range fitting)."""
         return [c for c in self.curves if c.isVisible()]
 

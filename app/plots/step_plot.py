@@ -8,7 +8,8 @@ import numpy as np
 import pyqtgraph as pg
 
 from app.plots.overlay import Overlay
-from app.plots.style import LOOP_PEN, NO_BORDER, REF_PEN, SEVERITY_BORDER, SEVERITY_PEN, curve, hline, styled_plot
+from app.plots.style import (Annotation, LOOP_PEN, NO_BORDER, REF_PEN, SEVERITY_BORDER, SEVERITY_PEN, curve, hline,
+                             styled_plot)
 from app.theme import LOOP_TITLES
 
 _DISPLAY_LIMIT = 1e3  # an unstable response is drawn clipped: its growth, not its size, is the news
@@ -37,9 +38,7 @@ class StepPlot:
             b.setOpacity(0.35)
         self.curve = curve(plot, LOOP_PEN[loop])
         self.overlay = Overlay(plot, (-4, -4) if legend else None)
-        self.text = pg.TextItem("", color="#555", anchor=(1, 0))
-        self.text.setParentItem(plot.vb)
-        plot.vb.sigResized.connect(self._place_text)
+        self.text = Annotation(plot.vb, "top-right")
         self._alert = None
         self._x = self._y = None
 
@@ -52,7 +51,7 @@ class StepPlot:
         words = "overshoot < 0.01 %" if st.overshoot_pct < 0.01 else f"overshoot {st.overshoot_pct:.3g} %"
         if math.isfinite(settle):
             words += f"\nsettles {settle * 1e3:.3g} ms" if settle < 1 else f"\nsettles {settle:.3g} s"
-        self.text.setText(words)
+        self.text.set_text(words)
 
     def compare(self, names, analyses) -> None:
         """Draw every compared set's step together (no names: back to the active set alone)."""
@@ -62,9 +61,6 @@ class StepPlot:
             return
         self.curve.hide()
         self.overlay.show(names, [(a.steps[self.loop].time_s, _shown(a.steps[self.loop].value)) for a in analyses])
-
-    def _place_text(self, *_):
-        self.text.setPos(self.plot.vb.width() - 4, 2)
 
     def fit(self) -> None:
         if self._x is None or len(self._x) < 2:

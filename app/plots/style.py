@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QGraphicsItem, QGraphicsSimpleTextItem
 
 from app.theme import CARD, INK, LOOP_COLOURS, MUTED, RULE, SEVERITY_COLOURS
 
@@ -51,9 +54,31 @@ def curve(plot: pg.PlotItem, colour_pen, ignore_bounds: bool = False) -> pg.Plot
     mapping, downsampling, clipping) costs more per update than the whole paint,
     so log axes are fed log10 data by the caller.
     """
-    item = pg.PlotCurveItem(pen=colour_pen, skipFiniteCheck=True)
+    item = Curve(pen=colour_pen, skipFiniteCheck=True)
     plot.addItem(item, ignoreBounds=ignore_bounds)
     return item
+
+
+class Curve(pg.PlotCurveItem):
+    """A PlotCurveItem whose full-range data bounds (asked for by Qt's repaint on every
+    ``setData``) are a plain min and max when the data are finite and the pen cosmetic,
+    as they almost always are here; pyqtgraph's own path (NaN-tolerant, with its warning
+    filters, adding the width of a non-cosmetic pen) runs otherwise, with the same result."""
+
+    def dataBounds(self, ax, frac=1.0, orthoRange=None):  # noqa: N802, N803 - pyqtgraph's names
+        cache = self._boundsCache[ax]
+        if frac < 1.0 or orthoRange is not None or (cache is not None and cache[0] == (frac, orthoRange)):
+            return super().dataBounds(ax, frac, orthoRange)
+        x, y = self.getData()
+        if x is None or len(x) == 0:
+            return (None, None)
+        d = x if ax == 0 else y
+        bounds = (float(d.min()), float(d.max()))
+        plain = self.opts["fillLevel"] is None and self.opts["pen"].isCosmetic() and self.opts["shadowPen"] is None
+        if not (plain and math.isfinite(bounds[0]) and math.isfinite(bounds[1])):
+            return super().dataBounds(ax, frac, orthoRange)
+        self._boundsCache[ax] = [(frac, orthoRange), bounds]
+        return bounds
 
 
 class DecadeRules:
@@ -77,3 +102,49 @@ def vline(plot: pg.PlotItem, x: float, p=REF_PEN) -> pg.InfiniteLine:
     line = pg.InfiniteLine(pos=x, angle=90, pen=p, movable=False)
     plot.addItem(line, ignoreBounds=True)
     return line
+
+
+class Annotation:
+    """A plain text pinned to a corner of a plot's view box, in pixels (not data units).
+
+    A simple text item rather than pyqtgraph's rich-text ``TextItem``: setting its text
+    lays out no document, and the text is kept as a pixmap between changes. Setting the
+    same text again does nothing.
+
+    Parameters
+    ----------
+    vb : pyqtgraph.ViewBox
+    corner : {"top-right", "bottom-right", "top-left"}
+    colour : str
+    """
+
+    MARGIN = (6, 4)
+    """Distance from the view box's edges, px (x, y)."""
+
+    def __init__(self, vb: pg.ViewBox, corner: str = "top-right", colour: str = "#555"):
+        self.vb, self.corner = vb, corner
+        self.item = QGraphicsSimpleTextItem()
+        self.item.setParentItem(vb)
+        self.item.setBrush(pg.mkColor(colour))
+        self.item.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
+        self.item.setZValue(50)
+        self._text = ""
+        vb.sigResized.connect(self.place)
+
+    @property
+    def text(self) -> str:
+        return self._text
+
+    def set_text(self, text: str) -> None:
+        if text == self._text:
+            return
+        self._text = text
+        self.item.setText(text)
+        self.place()
+
+    def place(self, *_) -> None:
+        r = self.item.boundingRect()
+        mx, my = self.MARGIN
+        x = self.vb.width() - mx - r.width() if self.corner.endswith("right") else mx
+        y = my if self.corner.startswith("top") else self.vb.height() - my - r.height()
+        self.item.setPos(x, y)
