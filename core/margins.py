@@ -295,9 +295,7 @@ class _Dips:
     def update(self, v: np.ndarray, lv: np.ndarray) -> None:
         """Take L (each point's own loop) at the proposed points."""
         rows = np.arange(len(self.x)) if not self.probed else self.active
-        peak = np.repeat(self.is_peak[rows], 1 if self.probed else 4)
-        with np.errstate(divide="ignore"):
-            yv = np.where(peak, -np.log(np.abs(lv)), np.log(np.abs(1.0 + lv)))
+        yv = search_kernels.dip_distances(lv, self.is_peak[rows], 1 if self.probed else 4)
         if not self.probed:
             self.x, self.y, self.pending, self.predicted = dip_after_probe(
                 self.x, self.y, v.reshape(-1, 4), yv.reshape(-1, 4))
@@ -326,11 +324,6 @@ class _Dips:
         """(w, |1 + L|) at the narrowed sensitivity dips of ``loop``."""
         mine = (self.owner == loop) & ~self.is_peak
         return np.exp(self.x[mine, 1]), np.exp(self.y[mine, 1])
-
-
-def _by_frequency(index: np.ndarray, w: np.ndarray) -> np.ndarray:
-    """``index`` ordered by ``w[index]`` (ties keep their order)."""
-    return index[np.argsort(w[index], kind="stable")]
 
 
 def _wrap_deg(angle_rad):
@@ -421,11 +414,13 @@ def loop_margins(axis: Axis, gains: GainSet, omega: np.ndarray | None = None) ->
 
     turns = nyquist_count(ev, np.concatenate([omega, tail]), ols_all, arc)
 
+    # Each loop's crossings of each kind in order of frequency (a dozen in all: lists).
+    by_w = sorted(range(len(refined)), key=refined.__getitem__)
+    owner, kinds = crossings.loop.tolist(), crossings.kind.tolist()
     out = {}
     inner_unstable = 0
     for li, name in enumerate(LOOPS):
-        mine = crossings.loop == li
-        g_sel, p_sel, b_sel = (_by_frequency(np.nonzero(mine & (crossings.kind == kind))[0], refined)
+        g_sel, p_sel, b_sel = (np.array([i for i in by_w if owner[i] == li and kinds[i] == kind], np.int64)
                                for kind in (search_kernels.GAIN, search_kernels.PHASE, search_kernels.BANDWIDTH))
         gw, pw, bw = refined[g_sel], refined[p_sel], refined[b_sel]
         at = refined_ols[li]

@@ -143,10 +143,11 @@ class _Contour:
 
     def invert(self, values: np.ndarray, integrations: int) -> np.ndarray:
         """``values`` (on :attr:`algebra`, along the last axis; rows of variants allowed)
-        divided by s**integrations, back to time."""
+        divided by s**integrations, back to time; ``integrations`` may be given per row."""
         n = self.samples // 2 + 1
         rows = np.ascontiguousarray(values, dtype=complex).reshape(-1, np.shape(values)[-1])
-        spectrum, f0, c = _spectrum(rows, n, self._per_s, self._q1, self._q2, self.s_far, integrations,
+        per_row = np.ascontiguousarray(np.broadcast_to(np.asarray(integrations, np.int64), len(rows)))
+        spectrum, f0, c = _spectrum(rows, n, self._per_s, self._q1, self._q2, self.s_far, per_row,
                                     self.samples / self.period, self.decay)
         series = np.fft.irfft(spectrum, n=self.samples, axis=-1)
         out = _undo_shift(series, n - 1, self._grow, self._fade, self.time_s, f0, c)
@@ -189,9 +190,9 @@ def _spectrum(values, n, per_s, q1, q2, s_far, integrations, scale, decay):
     for r in range(rows):
         h1, h2 = values[r, n].real, values[r, n + 1].real
         h_inf = 2.0 * h2 - h1
-        if integrations == 1:
+        if integrations[r] == 1:
             f0, df0 = h_inf, 2.0 * s_far * (h1 - h2)
-        elif integrations == 2:
+        elif integrations[r] == 2:
             f0, df0 = 0.0, h_inf
         else:
             f0, df0 = 0.0, 0.0
@@ -200,7 +201,7 @@ def _spectrum(values, n, per_s, q1, q2, s_far, integrations, scale, decay):
         c = df0 + decay * f0
         for k in range(n):
             divided = values[r, k] * per_s[k]
-            for _ in range(integrations - 1):
+            for _ in range(integrations[r] - 1):
                 divided = divided * per_s[k]
             spectrum[r, k] = (divided - (f0 * q1[k] + c * q2[k])) * scale
         f0s[r], cs[r] = f0, c
@@ -307,10 +308,8 @@ def position_and_load_step(axis: Axis, gains: GainSet, load_torque_nm: float, ho
     contour = _Contour(horizon_s, SAMPLES, growth_per_s)
     closed, disturbance = cascade_tape(axis, gains).evaluate(
         contour.s, ["position_closed", "position_disturbance_speed"])
-    y = contour.invert(closed, 1)
     h = disturbance * load_torque_nm
-    speed = contour.invert(h, 1)
-    position = contour.invert(h, 2)
+    y, speed, position = contour.invert(np.stack([closed, h, h]), [1, 1, 2])
     t = contour.time_s
     half = len(t)
     j = int(np.argmax(np.abs(speed)))

@@ -318,6 +318,12 @@ GAIN, PHASE, BANDWIDTH = 0, 1, 2
 
 
 @_jit
+def abs2(z):
+    """|z|^2."""
+    return z.real * z.real + z.imag * z.imag
+
+
+@_jit
 def residual(kind, ol, cl, ref):
     """A crossing's residual: log|L| (gain), arg(-L) (phase) or log|T| - ref (bandwidth)."""
     if kind == GAIN:
@@ -344,11 +350,15 @@ def grid_brackets(omega, ols, cls):
     w_lo, w_hi, r_lo, r_hi, ref = np.empty(cap), np.empty(cap), np.empty(cap), np.empty(cap), np.zeros(cap)
     m = 0
     for li in range(ols.shape[0]):
+        # The sign of log|L| is that of |L|^2 - 1 (the logarithm is taken at brackets only).
+        below = abs2(ols[li, 0]) < 1.0
         for k in range(n - 1):
-            g0, g1 = math.log(abs(ols[li, k])), math.log(abs(ols[li, k + 1]))
-            if _negative(g0) != _negative(g1):
-                loop[m], kind[m], w_lo[m], w_hi[m], r_lo[m], r_hi[m] = li, GAIN, omega[k], omega[k + 1], g0, g1
+            next_below = abs2(ols[li, k + 1]) < 1.0
+            if below != next_below:
+                loop[m], kind[m], w_lo[m], w_hi[m] = li, GAIN, omega[k], omega[k + 1]
+                r_lo[m], r_hi[m] = math.log(abs(ols[li, k])), math.log(abs(ols[li, k + 1]))
                 m += 1
+            below = next_below
         for k in range(n - 1):
             z0, z1 = ols[li, k], ols[li, k + 1]
             if _negative(z0.imag) != _negative(z1.imag) and z0.real + z1.real < 0:
@@ -357,8 +367,9 @@ def grid_brackets(omega, ols, cls):
                     loop[m], kind[m], w_lo[m], w_hi[m], r_lo[m], r_hi[m] = li, PHASE, omega[k], omega[k + 1], p0, p1
                     m += 1
         level = math.log(abs(cls[li, 0]) / math.sqrt(2.0))
+        threshold = 0.5 * abs2(cls[li, 0])              # |T|^2 3 dB down
         for k in range(n):
-            if math.log(abs(cls[li, k])) - level < 0:
+            if abs2(cls[li, k]) < threshold:
                 if k > 0:
                     loop[m], kind[m], w_lo[m], w_hi[m] = li, BANDWIDTH, omega[k - 1], omega[k]
                     r_lo[m] = math.log(abs(cls[li, k - 1])) - level
@@ -467,8 +478,18 @@ def arg_steps(values, limit):
     total = np.zeros(rows)
     for r in range(rows):
         for k in range(n - 1):
-            step = cmath.phase(values[r, k + 1] / values[r, k])
+            step = cmath.phase(values[r, k + 1] * values[r, k].conjugate())      # arg of the ratio
             total[r] += step
             if abs(step) > limit:
                 wide[k] = True
     return wide, total
+
+
+@_jit
+def dip_distances(values, peak, repeat):
+    """log distance at evaluated points: -log|L| where the row is a peak of |L|, else
+    log|1 + L|; ``peak`` is per row, each row having ``repeat`` consecutive points."""
+    out = np.empty(len(values))
+    for j in range(len(values)):
+        out[j] = -math.log(abs(values[j])) if peak[j // repeat] else math.log(abs(1.0 + values[j]))
+    return out

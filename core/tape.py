@@ -21,6 +21,7 @@ registers; ``a``/``b`` index registers or, for the ``*K`` codes, ``constants``;
 
 from __future__ import annotations
 
+import itertools
 from functools import lru_cache
 
 import numpy as np
@@ -137,9 +138,11 @@ OUTPUTS = ("current_open", "speed_open", "position_open", "current_closed", "spe
 LOOP_OUTPUTS = OUTPUTS[:6]
 """The three open loops, then the three closed loops."""
 
+_SHAPES = {}
+_SHAPE_NUMBERS = itertools.count()
 _PLANS = {}
 _PLANS_SIZE = 256
-"""Replay plans remembered (per tape structure and set of outputs); all forgotten beyond this."""
+"""Tape shapes and replay plans (per shape and set of outputs) remembered; all forgotten beyond this."""
 
 
 class Tape:
@@ -161,11 +164,19 @@ class Tape:
         self.outputs = tuple(outputs)
         self.coefficients = np.array(alg.coefficients, dtype=float)
         self.constants = np.array(alg.constants, dtype=complex)
-        self._ops = np.array(alg.ops, dtype=np.int64).reshape(-1, 4)
-        self._output_ops = np.array([v.index for v in values], dtype=np.int64)
+        self._ops = alg.ops
+        self._output_ops = tuple(v.index for v in values)
         # Gain sets of one shape (the same filters, decoupling, integral terms) record the
-        # same operations on other constants, so they share their replay plans.
-        self._structure = (self._ops.tobytes(), self._output_ops.tobytes())
+        # same operations on other constants, so they share their replay plans: the shape
+        # is numbered once, and plans are looked up by that number.
+        structure = (tuple(self._ops), self._output_ops)
+        if len(_SHAPES) >= _PLANS_SIZE:
+            _SHAPES.clear()
+            _PLANS.clear()
+        shape = _SHAPES.get(structure)
+        if shape is None:
+            shape = _SHAPES[structure] = next(_SHAPE_NUMBERS)   # never reused: old tapes keep theirs
+        self._shape = shape
 
     def evaluate(self, s, outputs=None) -> np.ndarray:
         """The outputs' values at the complex points ``s`` (1/s): one row per output, in the order asked.
@@ -178,7 +189,7 @@ class Tape:
             operations they need are replayed.
         """
         names = self.outputs if outputs is None else tuple(outputs)
-        key = (self._structure, names)
+        key = (self._shape, names)
         plan = _PLANS.get(key)
         if plan is None:
             if len(_PLANS) >= _PLANS_SIZE:
@@ -191,10 +202,10 @@ class Tape:
         return out
 
     def _plan(self, names):
-        picks = [self.outputs.index(n) for n in names]
-        roots = self._output_ops[picks]
-        keep = np.any(_ancestors(self._ops, roots), axis=0)
-        return _allocate(self._ops[keep], roots)
+        ops = np.array(self._ops, dtype=np.int64).reshape(-1, 4)
+        roots = np.array([self._output_ops[self.outputs.index(n)] for n in names], dtype=np.int64)
+        keep = np.any(_ancestors(ops, roots), axis=0)
+        return _allocate(ops[keep], roots)
 
 
 @lru_cache(maxsize=8)
