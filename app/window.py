@@ -260,9 +260,9 @@ def main_window(preset: Preset | None = None, settings: QSettings | None = None)
 
 def _starting_notice() -> QLabel:
     """A small note shown while the first analysis runs: the first start after an install
-    compiles the numerical kernels (about 11 s here, then about 0.5 s from the disk cache)."""
+    compiles the numerical kernels (about 15 s here, then about 0.6 s from the disk cache)."""
     notice = QLabel("Loopwright is starting.\n\nThe first start after installing compiles the "
-                    "numerical kernels, which takes a few seconds; later starts are quick.")
+                    "numerical kernels, which takes about a quarter of a minute; later starts are quick.")
     notice.setWindowFlags(Qt.WindowType.SplashScreen | Qt.WindowType.FramelessWindowHint)
     notice.setMargin(24)
     notice.show()
