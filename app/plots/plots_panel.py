@@ -102,6 +102,8 @@ class PlotsPanel(QTabWidget):
         self.selected = None
         self.update_count = 0
         self._shown: dict = {}
+        self._disturbance_due = None
+        self.currentChanged.connect(self._tab_changed)
         for view in (self.loops_view, self.disturbance_view):
             _cache_text(view)
         session.results_ready.connect(self.show_results)
@@ -135,7 +137,7 @@ class PlotsPanel(QTabWidget):
 
         A loop's plots are left as they are when nothing it depends on changed (dragging
         a speed gain leaves the current loop's step and Bode plots alone), so Qt does not
-        repaint them either.
+        repaint them either; the disturbance plots are fed when their tab is shown.
         """
         self.update_count += 1
         axis = self.session.axis
@@ -145,11 +147,27 @@ class PlotsPanel(QTabWidget):
                 self.steps[loop].update(analysis)
                 self.bode[loop].update(analysis, axis)
         self._shown = shown
-        self.load_step.update(analysis)
-        self.stiffness.update(analysis, axis)
+        self._disturbance_due = (analysis, axis)
+        if self.currentWidget() is self.disturbance_view:
+            self._show_disturbance()
         self._alerts(analysis.flags)
         if not self.held:
             self.fit()
+
+    def _show_disturbance(self) -> None:
+        if self._disturbance_due is None:
+            return
+        analysis, axis = self._disturbance_due
+        self._disturbance_due = None
+        self.load_step.update(analysis)
+        self.stiffness.update(analysis, axis)
+        if not self.held:
+            self.load_step.fit()
+            self.stiffness.fit()
+
+    def _tab_changed(self, _index: int) -> None:
+        if self.currentWidget() is self.disturbance_view:
+            self._show_disturbance()
 
     def show_comparison(self, comparison) -> None:
         """Draw the compared sets together in every plot and fill the metrics table (None: stop)."""

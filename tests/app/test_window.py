@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import numpy as np
+
 from PySide6.QtWidgets import QApplication
 
 
@@ -44,3 +46,19 @@ def test_a_speed_gain_leaves_the_current_loop_plots_alone(window):
     slider.setValue(slider.value() + 5)
     s.flush()
     assert plots.bode["current"].mag_curve.yData is not after["current"]
+
+
+def test_the_disturbance_plots_follow_when_their_tab_is_shown(window):
+    """A gain moved while the loop plots are shown leaves the hidden load-step curve as it
+    was; showing the disturbance tab brings it to the latest result."""
+    s, plots = window.session, window.plots
+    plots.setCurrentWidget(plots.loops_view)
+    before = plots.load_step.speed_curve.yData
+    slider = window.gains_panel.controls["speed.kp"].slider
+    slider.setValue(slider.value() + 8)
+    s.flush()
+    assert plots.load_step.speed_curve.yData is before
+    plots.setCurrentWidget(plots.disturbance_view)
+    shown = plots.load_step.speed_curve.yData
+    assert shown is not before
+    np.testing.assert_array_equal(shown, s.analysis.load_step.speed_rad_s)
