@@ -113,7 +113,7 @@ def inverse_laplace(transfer: Callable[[FrequencyAlgebra], np.ndarray], horizon_
     (time_s, value) : tuple of ndarray, each ``samples // 2`` long
     """
     contour = _Contour(horizon_s, samples, growth_per_s)
-    values = transfer(contour.algebra)
+    values = transfer(FrequencyAlgebra.at(contour.s))
     return contour.time_s, contour.invert(values, integrations)
 
 
@@ -139,10 +139,9 @@ class _Contour:
         # and 1/(s+a)^2 of the carried part, and the exponentials that undo the shift.
         (self.s, self.time_s, self._per_s, self._q1, self._q2, self._grow,
          self._fade) = _contour(samples, self.period, self.sigma, self.s_far, self.decay)
-        self.algebra = FrequencyAlgebra.at(self.s)
 
     def invert(self, values: np.ndarray, integrations: int) -> np.ndarray:
-        """``values`` (on :attr:`algebra`, along the last axis; rows of variants allowed)
+        """``values`` (at :attr:`s`, along the last axis; rows of variants allowed)
         divided by s**integrations, back to time; ``integrations`` may be given per row."""
         n = self.samples // 2 + 1
         rows = np.ascontiguousarray(values, dtype=complex).reshape(-1, np.shape(values)[-1])

@@ -831,9 +831,9 @@ def _step_chunk(vaxis, gains, horizons, load_torque, samples):
     v = len(vaxis)
     for key in (*LOOPS, "load"):
         contour = _Contour(horizons[key], samples, 0.0)
-        model = CascadeModel(vaxis, gains, VariantAlgebra(contour.algebra.s))
+        model = CascadeModel(vaxis, gains, VariantAlgebra(contour.s))
         h = model.position_disturbance_speed * load_torque if key == "load" else getattr(model, f"{key}_closed")
-        steps[key] = (contour.time_s, contour.invert(_full(h, (v, len(contour.algebra.s))), 1))
+        steps[key] = (contour.time_s, contour.invert(_full(h, (v, len(contour.s))), 1))
     return steps
 
 

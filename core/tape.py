@@ -6,17 +6,18 @@ model evaluation costs some 100 us of Python before any arithmetic — a recompu
 evaluates the model about eight times (the grid, the margin rounds, the Nyquist
 subdivisions, three inversion contours). :class:`TapeAlgebra` runs the same formulas
 on placeholders instead and records each operation (a polynomial in s, a delay, a
-sum, product or quotient, or one of these with a constant) on a tape. :func:`replay`
-then computes the requested outputs at any points with numba, a block of points at a
-time, so the intermediate values stay in the processor's caches.
+sum, product or quotient, or one of these with a constant) on a tape.
+:meth:`Tape.evaluate` then computes the requested outputs at any points with numba, a
+block of points at a time, so the intermediate values stay in the processor's caches.
 
 The tape holds the very operations numpy would do, in the same order, so its values
 match :class:`FrequencyAlgebra`'s to rounding (a few ulp: the compiled complex
 division and exponential are not numpy's).
 
-Tape layout: ``ops`` is an ``(n, 4)`` int64 array ``(code, destination, a, b)`` over
-registers; ``a``/``b`` index registers or, for the ``*K`` codes, ``constants``;
-``POLY`` reads ``coefficients[a:b]``; ``DELAY`` reads the delay, s, at ``constants[a]``.
+Tape layout: each operation is ``(code, destination, a, b)``; ``a``/``b`` index
+values or, for the ``*K`` codes, ``constants``; ``POLY`` reads ``coefficients[a:b]``;
+``DELAY`` reads the delay, s, at ``constants[a]``. A replay plan keeps the operations an
+output set needs, as an ``(n, 4)`` int64 array over reused registers.
 """
 
 from __future__ import annotations
@@ -226,12 +227,13 @@ def _ancestors(ops, output_ops):
             if needs[j, i]:
                 continue
             needs[j, i] = True
-            code, _, a, b = ops[i]
-            if code in _BINARY:
-                stack += [int(a), int(b)]
-            elif code in _WITH_CONSTANT:
-                stack.append(int(a))
+            stack += _reads(*ops[i, [0, 2, 3]])
     return needs
+
+
+def _reads(code, a, b) -> tuple:
+    """The registers an operation reads."""
+    return (int(a), int(b)) if code in _BINARY else (int(a),) if code in _WITH_CONSTANT else ()
 
 
 def _allocate(ops, output_ops):
@@ -239,19 +241,18 @@ def _allocate(ops, output_ops):
 
     Returns (ops over registers, register count, the outputs' registers).
     """
-    reads = lambda code, a, b: (a, b) if code in _BINARY else (a,) if code in _WITH_CONSTANT else ()
     last = {}
     for k, (code, _, a, b) in enumerate(ops):
-        for r in reads(code, a, b):
-            last[int(r)] = k
+        for r in _reads(code, a, b):
+            last[r] = k
     for r in output_ops:
         last[int(r)] = len(ops)
     free, where, n_registers = [], {}, 0
     out = ops.copy()
     for k, (code, dest, a, b) in enumerate(ops):
-        operands = reads(code, a, b)
-        mapped = [where[int(r)] for r in operands]
-        for r in set(int(r) for r in operands):
+        operands = _reads(code, a, b)
+        mapped = [where[r] for r in operands]
+        for r in set(operands):
             if last[r] == k:
                 free.append(where[r])
         if free:

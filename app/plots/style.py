@@ -131,10 +131,6 @@ class Annotation:
         self._text = ""
         vb.sigResized.connect(self.place)
 
-    @property
-    def text(self) -> str:
-        return self._text
-
     def set_text(self, text: str) -> None:
         if text == self._text:
             return
