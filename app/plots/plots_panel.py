@@ -4,8 +4,8 @@ and the move simulation when the core has it. Items are created once and fed wit
 from __future__ import annotations
 
 import pyqtgraph as pg
-from PySide6.QtWidgets import (QComboBox, QGraphicsItem, QGraphicsScene, QGraphicsTextItem, QHBoxLayout, QLabel,
-                               QTabWidget, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QComboBox, QGraphicsItem, QGraphicsScene, QGraphicsTextItem, QGraphicsView, QHBoxLayout,
+                               QLabel, QTabWidget, QVBoxLayout, QWidget)
 
 from app.flag_kinds import flag_kind
 from app.panels.comparison_table import ComparisonTable
@@ -46,6 +46,10 @@ def _layout_widget(name: str) -> pg.GraphicsLayoutWidget:
     # Curves change shape on every slider tick; keeping Qt's BSP item index up to date
     # then costs more than it saves on a scene of a few hundred items.
     w.scene().setItemIndexMethod(QGraphicsScene.ItemIndexMethod.NoIndex)
+    # One rectangle around what changed, not the exact region: a slider tick dirties a few
+    # whole plots, whose exact region is some twenty rectangles, and clipping every item
+    # to such a region costs more than painting the few pixels between them.
+    w.setViewportUpdateMode(QGraphicsView.ViewportUpdateMode.BoundingRectViewportUpdate)
     return w
 
 

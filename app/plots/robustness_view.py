@@ -17,6 +17,7 @@ from PySide6.QtWidgets import (QComboBox, QDoubleSpinBox, QGridLayout, QGroupBox
                                QProgressBar, QPushButton, QSpinBox, QSplitter, QTableWidget, QTableWidgetItem,
                                QVBoxLayout, QWidget)
 
+from app.plots.style import LEFT_AXIS_PX
 from app.robustness_worker import RobustnessJob, autotune_work, notch_work, sweep_work
 from app.session import Session
 from core.errors import InputError
@@ -169,6 +170,8 @@ class RobustnessView(QWidget):
             p.getAxis("bottom").setLogMode(True)
             p.showGrid(x=True, y=True, alpha=0.25)
             p.getAxis("left").enableAutoSIPrefix(False)
+        for p in (self.mag_plot, self.phase_plot, self.step_plot):
+            p.getAxis("left").setWidth(LEFT_AXIS_PX)
         self.phase_plot.setXLink(self.mag_plot)
         self.step_plot.showGrid(x=True, y=True, alpha=0.25)
         self.mag_plot.setLabel("left", "|L|", units="dB")

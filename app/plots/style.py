@@ -28,6 +28,13 @@ SEVERITY_BORDER = {k: pen(c, 2) for k, c in SEVERITY_COLOURS.items()}
 NO_BORDER = pen(RULE, 1)
 
 
+LEFT_AXIS_PX = 56
+"""Width of every plot's left axis: plots stacked in a column then share one left edge, so
+plots with linked x axes (Bode magnitude over phase, a move's traces) show the same
+range; with widths that follow the tick labels pyqtgraph offsets the linked ranges by
+the difference instead. Wide enough for "-1000" and a rotated label."""
+
+
 def styled_plot(plot: pg.PlotItem, title: str, x_label: str, x_units: str | None, y_label: str,
                 y_units: str | None) -> pg.PlotItem:
     """Labels with units (SI prefixes chosen by pyqtgraph), no mouse interaction surprises."""
@@ -40,6 +47,11 @@ def styled_plot(plot: pg.PlotItem, title: str, x_label: str, x_units: str | None
         ax.setTextPen(pen(INK))
         ax.label.setFont(pg.QtGui.QFont(ax.label.font().family(), 8))
         ax.setStyle(tickFont=pg.QtGui.QFont(ax.label.font().family(), 8))
+        # An axis overlaps its view box by the tick length, so every curve update repaints
+        # it; kept as a pixmap it is blitted instead of replayed (pyqtgraph calls update()
+        # when the range or label changes, which renews the pixmap).
+        ax.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
+    plot.getAxis("left").setWidth(LEFT_AXIS_PX)
     plot.hideButtons()
     plot.setMenuEnabled(False)
     plot.vb.setBorder(NO_BORDER)

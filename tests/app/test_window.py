@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from PySide6.QtCore import QPoint, QRect
 from PySide6.QtWidgets import QApplication
 
 
@@ -62,3 +63,49 @@ def test_the_disturbance_plots_follow_when_their_tab_is_shown(window):
     shown = plots.load_step.speed_curve.yData
     assert shown is not before
     np.testing.assert_array_equal(shown, s.analysis.load_step.speed_rad_s)
+
+
+def _loops_view_on_screen(window):
+    """The loop view's pixels as the window last painted them (the backing store), which is
+    where a stale partial repaint or a stale cached pixmap would show."""
+    view = window.plots.loops_view
+    shot = QApplication.primaryScreen().grabWindow(window.winId())
+    return shot.copy(QRect(view.mapTo(window, QPoint(0, 0)), view.size())).toImage()
+
+
+def test_partial_repaints_draw_what_a_fresh_window_draws(window, qtbot, settings):
+    """The loop view repaints one rectangle around what changed and keeps its axes as
+    pixmaps. After a preset change (every range re-ticked), a held drag, its release and
+    a plain move, its pixels must equal those of a new window drawn once on the same
+    state (derived: two drawings of one state by the same code)."""
+    from app.window import main_window
+    from core.presets import builtin_preset
+
+    window.load(builtin_preset("rotary_table"))
+    control = window.gains_panel.controls["speed.kp"]
+    control.slider.setSliderDown(True)
+    for _ in range(8):
+        control.slider.setValue(control.slider.value() + 9)
+        QApplication.processEvents()
+    control.slider.setSliderDown(False)
+    window.gains_panel._drag_finished()
+    window.gains_panel.controls["current.ki"].slider.setValue(
+        window.gains_panel.controls["current.ki"].slider.value() - 30)
+    window.session.flush()
+    for _ in range(5):
+        QApplication.processEvents()
+    painted = _loops_view_on_screen(window)
+
+    fresh = main_window(builtin_preset("rotary_table"), settings=settings)
+    qtbot.addWidget(fresh)
+    fresh.session.set_gains(window.session.gains)
+    fresh.session.flush()
+    fresh.resize(window.size())
+    fresh.show()
+    qtbot.waitExposed(fresh)
+    for _ in range(5):
+        QApplication.processEvents()
+    drawn = fresh.plots.loops_view.grab().toImage().convertToFormat(painted.format())
+    fresh.session.undo_stack.setClean()
+    assert painted.size() == drawn.size()
+    assert painted == drawn
