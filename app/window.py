@@ -5,6 +5,7 @@ Nothing here computes; see :mod:`app.session` for the state and the calls into c
 
 from __future__ import annotations
 
+import gc
 import sys
 from pathlib import Path
 
@@ -258,6 +259,17 @@ def main_window(preset: Preset | None = None, settings: QSettings | None = None)
     return MainWindow(session, settings)
 
 
+def freeze_start_up_objects() -> None:
+    """Collect once, then leave everything alive now out of later garbage collections.
+
+    The window, its plot items and the loaded kernels are some 200,000 objects that live
+    until the program ends; a full collection that scans them all stalls the window for
+    about 0.1 s (measured here during a slider drag), one scanning only what came after
+    them takes a few ms (``gc.freeze``, Python 3.7+)."""
+    gc.collect()
+    gc.freeze()
+
+
 def _starting_notice() -> QLabel:
     """A small note shown while the first analysis runs: the first start after an install
     compiles the numerical kernels (about 15 s here, then about 0.6 s from the disk cache)."""
@@ -281,6 +293,7 @@ def run(preset_path: str | None = None) -> int:
             print(f"loopwright: could not open {preset_path}; showing the demo preset", file=sys.stderr)
     window.show()
     notice.close()
+    freeze_start_up_objects()
     if caution_needed(window.settings):
         QTimer.singleShot(0, lambda: show_caution(window, window.settings))
     return app.exec()

@@ -163,7 +163,7 @@ def main(argv=None) -> int:
                         help="gain slider to drive (e.g. current.kp), or 'all' for every gain slider")
     args = parser.parse_args(argv)
 
-    from app.window import main_window
+    from app.window import freeze_start_up_objects, main_window
 
     settings = QSettings(str(Path(os.environ.get("TMPDIR", "/tmp")) / "loopwright-bench.ini"),
                          QSettings.Format.IniFormat)
@@ -172,6 +172,7 @@ def main(argv=None) -> int:
     window.show()
     app = QApplication.instance()
     _until_idle(app, window.session, -1, time.perf_counter() + 10.0)
+    freeze_start_up_objects()  # as app.window.run does once the window is up
     paths = list(window.gains_panel.controls) if args.loop == "all" else [args.loop]
     unknown = [p for p in paths if p not in window.gains_panel.controls]
     if unknown:
