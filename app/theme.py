@@ -40,7 +40,7 @@ QLabel[role="reason"] {{ color: {SEVERITY_COLOURS['error']}; font-size: 11px; }}
 QLabel[role="heading"] {{ font-weight: bold; color: {MUTED}; }}
 QPushButton {{ border: 1px solid {RULE}; border-radius: 3px; padding: 3px 10px; background: {CARD}; }}
 QPushButton:hover {{ border-color: {MUTED}; }}
-QTabBar::tab {{ padding: 5px 14px; background: {PAPER}; border: 1px solid {RULE}; border-bottom: none;
+QTabBar::tab {{ padding: 5px 9px; background: {PAPER}; border: 1px solid {RULE}; border-bottom: none;
                margin-right: 2px; border-top-left-radius: 4px; border-top-right-radius: 4px; }}
 QTabBar::tab:selected {{ background: {CARD}; font-weight: bold; }}
 QListWidget, QTableWidget, QPlainTextEdit {{ background: {CARD}; border: 1px solid {RULE}; }}
