@@ -72,7 +72,7 @@ def main() -> int:
     axis, gains = bench_axis()
     sc = scenario_from_dict(SCENARIO, axis, "bench")
     pr = _prepare(axis, gains, sc)
-    out = np.zeros((pr.n, K.N_CH))
+    out = np.zeros((K.N_CH, pr.n))
     args = (pr.ad, pr.bd, pr.ac, pr.bc, pr.fp, pr.ip, pr.sos_fb, pr.sos_cmd, pr.ref_a, pr.ref_b, pr.ref_c,
             pr.t_load, out)
 
@@ -80,7 +80,7 @@ def main() -> int:
     kernel = median_s(lambda: K.run_kernel(*args), 200)
 
     # Pure Python: the same source, interpreted, helpers included.
-    helpers = ("_pi_step", "_biquads", "_friction")
+    helpers = ("_pi_step", "_biquads", "_at_rest")
     saved = {h: getattr(K, h) for h in helpers}
     try:
         for h in helpers:

@@ -92,7 +92,8 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
     t_load : ndarray
         Load torque at the motor shaft averaged over each sample, N*m.
     out : ndarray
-        (n, N_CH) array filled with the traces.
+        (N_CH, n) array filled with the traces, one row per channel (so each trace is a
+        contiguous row the caller can hand out without copying).
 
     Returns
     -------
@@ -113,6 +114,7 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
     kp_i, ki_i_t = fp[F_KP_I], fp[F_KI_I] * tc
     kp_w, ki_w_t = fp[F_KP_W], fp[F_KI_W] * tw
     kp_p, ki_p_t = fp[F_KP_P], fp[F_KI_P] * tp
+    kb_i, kb_w, kb_p = tc / fp[F_TT_I], tw / fp[F_TT_W], tp / fp[F_TT_P]
     vmax, imax, wmax = fp[F_VMAX], fp[F_IMAX], fp[F_WMAX]
     cpr = fp[F_CPR]
     vfrac = fp[F_VFRAC]
@@ -124,11 +126,16 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
     wdel = ip[I_WDELAY]
     edel = ip[I_EDELAY]
 
-    # ring buffers of held controller outputs, one entry per current-loop sample
+    # Ring buffers of held controller outputs, one entry per current-loop sample. A ring of
+    # length d + 1 written at k % (d + 1) holds the value of sample k - d in the slot after
+    # the one written; the slots and the loop phases are kept as counters, because an
+    # integer remainder per ring per sample was most of the kernel's time.
     lv = vdel + 2
     lw = wdel + 1
     li = idel + 1
     le = edel + 1
+    kv = kw = ki = ke = 0          # k % lv, k % lw, k % li, k % le
+    phase_s = phase_p = 0          # k % ns, k % (ns * np)
     ring_v = np.zeros(lv)
     ring_wc = np.zeros(lw)
     ring_iff = np.zeros(lw)
@@ -170,25 +177,26 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
         thq = math.floor(x[2] * cpr) / cpr
 
         # --- position loop (every ns*np samples)
-        if mode == MODE_POSITION and k % nsp == 0:
+        if mode == MODE_POSITION and phase_p == 0:
             e_p = ref_a[k] - thq
-            pos_w, integ_p, pos_sat = _pi_step(e_p, integ_p, kp_p, ki_p_t, wmax, tp / fp[F_TT_P], aw, limits,
+            pos_w, integ_p, pos_sat = _pi_step(e_p, integ_p, kp_p, ki_p_t, wmax, kb_p, aw, limits,
                                                fp[F_VFF] * ref_b[k])
             pos_iff = fp[F_AFF] * ref_c[k]
-        ring_wc[k % lw] = pos_w
-        ring_iff[k % lw] = pos_iff
+        ring_wc[kw] = pos_w
+        ring_iff[kw] = pos_iff
         j = k - wdel
-        w_cmd_d = ring_wc[j % lw] if j >= 0 else 0.0
-        iff_d = ring_iff[j % lw] if j >= 0 else 0.0
+        rd = kw + 1 if kw + 1 < lw else 0
+        w_cmd_d = ring_wc[rd] if j >= 0 else 0.0
+        iff_d = ring_iff[rd] if j >= 0 else 0.0
 
         # --- speed estimate (backward difference of counts) and speed loop (every ns samples)
-        if k % ns == 0:
+        if phase_s == 0:
             w_est = (thq - thq_prev) / tw
             thq_prev = thq
-        ring_e[k % le] = w_est
+        ring_e[ke] = w_est
         j = k - edel
-        w_est_d = ring_e[j % le] if j >= 0 else 0.0
-        if k % ns == 0:
+        w_est_d = ring_e[ke + 1 if ke + 1 < le else 0] if j >= 0 else 0.0
+        if phase_s == 0:
             w_fb = _biquads(w_est_d, sos_fb, st_fb)
             if mode == MODE_SPEED:
                 w_ref = ref_a[k]
@@ -199,11 +207,11 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
                 w_cmd = _biquads(w_cmd_d, sos_cmd, st_cmd)
             if mode == MODE_SPEED or mode == MODE_POSITION:
                 e_w = w_cmd - w_fb
-                spd_i, integ_w, spd_sat = _pi_step(e_w, integ_w, kp_w, ki_w_t, imax, tw / fp[F_TT_W], aw, limits,
-                                                   iff_d)
-        ring_ic[k % li] = spd_i
-        ring_is[k % li] = 1.0 if spd_sat else 0.0
+                spd_i, integ_w, spd_sat = _pi_step(e_w, integ_w, kp_w, ki_w_t, imax, kb_w, aw, limits, iff_d)
+        ring_ic[ki] = spd_i
+        ring_is[ki] = 1.0 if spd_sat else 0.0
         j = k - idel
+        rd = ki + 1 if ki + 1 < li else 0
         if mode == MODE_CURRENT:
             i_cmd = ref_a[k]
             i_sat = False
@@ -214,8 +222,8 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
             i_cmd = 0.0
             i_sat = False
         else:
-            i_cmd = ring_ic[j % li] if j >= 0 else 0.0
-            i_sat = (ring_is[j % li] > 0.5) if j >= 0 else False
+            i_cmd = ring_ic[rd] if j >= 0 else 0.0
+            i_sat = (ring_is[rd] > 0.5) if j >= 0 else False
 
         # --- current loop (every sample); d axis ideal, taking v_d = -p w L i first
         v_d = -pl * x[1] * i_act
@@ -228,11 +236,11 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
             vq_lim = math.sqrt(max(vmax * vmax - v_d * v_d, 0.0))
             ff = fp[F_KE_FF] * w_est_d
             v_dem = kp_i * e_i + integ_i + ki_i_t * e_i + ff
-            v_cmd, integ_i, v_sat = _pi_step(e_i, integ_i, kp_i, ki_i_t, vq_lim, tc / fp[F_TT_I], aw, limits, ff)
-        ring_v[k % lv] = v_cmd
-        j = k - vdel
-        va = ring_v[j % lv] if j >= 0 else 0.0
-        vb = ring_v[(j - 1) % lv] if j >= 1 else 0.0
+            v_cmd, integ_i, v_sat = _pi_step(e_i, integ_i, kp_i, ki_i_t, vq_lim, kb_i, aw, limits, ff)
+        ring_v[kv] = v_cmd
+        j = k - vdel                   # samples k - vdel and k - vdel - 1 sit two and one slots on
+        va = ring_v[kv + 2 - lv if kv + 2 >= lv else kv + 2] if j >= 0 else 0.0
+        vb = ring_v[kv + 1 if kv + 1 < lv else 0] if j >= 1 else 0.0
         v_app = (1.0 - vfrac) * va + vfrac * vb
 
         # --- plant over [t_k, t_k+1): inputs held, Coulomb friction with stiction
@@ -242,10 +250,19 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
         u[3] = 0.0
         stuck_m = False
         stuck_l = False
+        # A moving mass gets fc*sign(w) with no call: a call that passes arrays costs more
+        # (their reference counts) than the rest of the sample, and a mass is moving in
+        # nearly every sample.
         if fc_m > 0.0:
-            stuck_m, u[2] = _friction(x, u, ac, bc, 1, 2, fc_m)
+            if x[1] != 0.0:
+                u[2] = math.copysign(fc_m, x[1])
+            else:
+                stuck_m, u[2] = _at_rest(x, u, ac, bc, 1, 2, fc_m)
         if compliant and fc_l > 0.0:
-            stuck_l, u[3] = _friction(x, u, ac, bc, w_idx_l, 3, fc_l)
+            if x[w_idx_l] != 0.0:
+                u[3] = math.copysign(fc_l, x[w_idx_l])
+            else:
+                stuck_l, u[3] = _at_rest(x, u, ac, bc, w_idx_l, 3, fc_l)
         for r in range(nx):
             acc = 0.0
             for c in range(nx):
@@ -270,29 +287,29 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
             p_fric += u[3] * 0.5 * (x[w_idx_l] + xn[w_idx_l])
 
         # --- record the sample at t_k
-        out[k, CH_I] = i_act
-        out[k, CH_I_CMD] = i_cmd
-        out[k, CH_I_MEAS] = i_meas
-        out[k, CH_V_CMD] = v_cmd
-        out[k, CH_V_APPLIED] = v_app
-        out[k, CH_V_D] = v_d
-        out[k, CH_W_M] = x[1]
-        out[k, CH_TH_M] = x[2]
-        out[k, CH_W_L] = x[w_idx_l] if compliant else x[1]
-        out[k, CH_TH_L] = x[th_idx_l] if compliant else x[2]
-        out[k, CH_W_CMD] = w_cmd
-        out[k, CH_W_FB] = w_fb
-        out[k, CH_TH_REF] = ref_a[k] if mode == MODE_POSITION else 0.0
-        out[k, CH_TH_MEAS] = thq
-        out[k, CH_E_I] = e_i
-        out[k, CH_E_W] = e_w
-        out[k, CH_E_P] = e_p
-        out[k, CH_SAT_V] = 1.0 if v_sat else 0.0
-        out[k, CH_SAT_I] = 1.0 if i_sat else 0.0
-        out[k, CH_SAT_W] = 1.0 if pos_sat else 0.0
-        out[k, CH_T_LOAD] = t_load[k]
-        out[k, CH_V_DEMAND] = math.sqrt(v_dem * v_dem + v_d * v_d)
-        out[k, CH_P_FRIC] = p_fric
+        out[CH_I, k] = i_act
+        out[CH_I_CMD, k] = i_cmd
+        out[CH_I_MEAS, k] = i_meas
+        out[CH_V_CMD, k] = v_cmd
+        out[CH_V_APPLIED, k] = v_app
+        out[CH_V_D, k] = v_d
+        out[CH_W_M, k] = x[1]
+        out[CH_TH_M, k] = x[2]
+        out[CH_W_L, k] = x[w_idx_l] if compliant else x[1]
+        out[CH_TH_L, k] = x[th_idx_l] if compliant else x[2]
+        out[CH_W_CMD, k] = w_cmd
+        out[CH_W_FB, k] = w_fb
+        out[CH_TH_REF, k] = ref_a[k] if mode == MODE_POSITION else 0.0
+        out[CH_TH_MEAS, k] = thq
+        out[CH_E_I, k] = e_i
+        out[CH_E_W, k] = e_w
+        out[CH_E_P, k] = e_p
+        out[CH_SAT_V, k] = 1.0 if v_sat else 0.0
+        out[CH_SAT_I, k] = 1.0 if i_sat else 0.0
+        out[CH_SAT_W, k] = 1.0 if pos_sat else 0.0
+        out[CH_T_LOAD, k] = t_load[k]
+        out[CH_V_DEMAND, k] = math.sqrt(v_dem * v_dem + v_d * v_d)
+        out[CH_P_FRIC, k] = p_fric
 
         ok = True
         for r in range(nx):
@@ -302,23 +319,25 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
             return k + 1
         for r in range(nx):
             x[r] = xn[r]
+        kv = kv + 1 if kv + 1 < lv else 0
+        kw = kw + 1 if kw + 1 < lw else 0
+        ki = ki + 1 if ki + 1 < li else 0
+        ke = ke + 1 if ke + 1 < le else 0
+        phase_s = phase_s + 1 if phase_s + 1 < ns else 0
+        phase_p = phase_p + 1 if phase_p + 1 < nsp else 0
     return n
 
 
 @njit(cache=True)
-def _friction(x, u, ac, bc, w_idx, f_idx, fc):
-    """Coulomb friction torque to hold over the next step, and whether the mass sticks.
+def _at_rest(x, u, ac, bc, w_idx, f_idx, fc):
+    """Coulomb friction torque to hold over the next step for a mass at rest (``x[w_idx]``
+    is 0), and whether it sticks; a moving mass gets fc*sign(w) in the kernel itself.
 
-    A moving mass gets fc*sign(w). A mass at rest sticks while the torque driving it
-    (everything but friction) is within fc, and friction then cancels it exactly
-    (Karnopp, "Computer simulation of stick-slip friction in mechanical dynamic
-    systems", J. Dyn. Sys. Meas. Control, 1985; from memory).
+    A mass at rest sticks while the torque driving it (everything but friction) is
+    within fc, and friction then cancels it exactly (Karnopp, "Computer simulation of
+    stick-slip friction in mechanical dynamic systems", J. Dyn. Sys. Meas. Control,
+    1985; from memory).
     """
-    w = x[w_idx]
-    if w > 0.0:
-        return False, fc
-    if w < 0.0:
-        return False, -fc
     acc = bc[w_idx, 0] * u[0] + bc[w_idx, 1] * u[1]
     for c in range(x.shape[0]):
         acc += ac[w_idx, c] * x[c]

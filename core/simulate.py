@@ -352,6 +352,44 @@ _MODES = {"current_step": K.MODE_CURRENT, "speed_step": K.MODE_SPEED, "voltage_s
 _AW = {"off": K.AW_OFF, "clamp": K.AW_CLAMP, "back_calculation": K.AW_BACK}
 
 
+@lru_cache(maxsize=16)
+def _references(sc: Scenario, ratio: float, tc: float, n: int):
+    """References and load torque per current-loop sample, and the end of the move, s.
+
+    They depend on the scenario and the load's ratio only, not on the gains, so a gain
+    being dragged reuses them; the arrays are read-only (shared between runs).
+    """
+    t = np.arange(n) * tc
+    ref_a = np.zeros(n)
+    ref_b = np.zeros(n)
+    ref_c = np.zeros(n)
+    move_end = math.nan
+    eps = 1e-9 * tc
+    if sc.kind in ("current_step", "speed_step", "voltage_step"):
+        ref_a[:] = np.where(t >= sc.step_time_s - eps, sc.step, 0.0)
+    elif sc.kind == "move":
+        from core.profiles import jerk_limited_profile, trapezoid_profile
+        if sc.profile == "jerk_limited":
+            prof = jerk_limited_profile(sc.distance_load, sc.speed_load, sc.acceleration_load, sc.jerk_load)
+        else:
+            prof = trapezoid_profile(sc.distance_load, sc.speed_load, sc.acceleration_load)
+        p, v, acc = prof.evaluate(t - sc.start_time_s)
+        ref_a[:] = ratio * p
+        ref_b[:] = ratio * v
+        ref_c[:] = ratio * acc
+        move_end = sc.start_time_s + prof.duration_s
+
+    t_load = np.zeros(n)
+    if sc.load_step_load != 0.0:
+        t_on = sc.load_step_time_s
+        t_off = t_on + sc.load_pulse_width_s
+        overlap = np.clip(np.minimum(t + tc, t_off) - np.maximum(t, t_on), 0.0, tc) / tc
+        t_load[:] = overlap * sc.load_step_load / ratio       # torque reflects with 1/r
+    for a in (ref_a, ref_b, ref_c, t_load):
+        a.flags.writeable = False
+    return ref_a, ref_b, ref_c, t_load, move_end
+
+
 def _prepare(axis: Axis, gains: GainSet, sc: Scenario) -> _Prepared:
     drive, motor = axis.drive, axis.motor
     fc = drive.current_rate_hz
@@ -390,33 +428,7 @@ def _prepare(axis: Axis, gains: GainSet, sc: Scenario) -> _Prepared:
     sos_fb = np.ascontiguousarray(np.array(sos_fb, dtype=float).reshape(-1, 5))
     sos_cmd = np.ascontiguousarray(np.array(sos_cmd, dtype=float).reshape(-1, 5))
 
-    ratio = axis.load.ratio
-    t = np.arange(n) * tc
-    ref_a = np.zeros(n)
-    ref_b = np.zeros(n)
-    ref_c = np.zeros(n)
-    move_end = math.nan
-    eps = 1e-9 * tc
-    if sc.kind in ("current_step", "speed_step", "voltage_step"):
-        ref_a[:] = np.where(t >= sc.step_time_s - eps, sc.step, 0.0)
-    elif sc.kind == "move":
-        from core.profiles import jerk_limited_profile, trapezoid_profile
-        if sc.profile == "jerk_limited":
-            prof = jerk_limited_profile(sc.distance_load, sc.speed_load, sc.acceleration_load, sc.jerk_load)
-        else:
-            prof = trapezoid_profile(sc.distance_load, sc.speed_load, sc.acceleration_load)
-        p, v, acc = prof.evaluate(t - sc.start_time_s)
-        ref_a[:] = ratio * p
-        ref_b[:] = ratio * v
-        ref_c[:] = ratio * acc
-        move_end = sc.start_time_s + prof.duration_s
-
-    t_load = np.zeros(n)
-    if sc.load_step_load != 0.0:
-        t_on = sc.load_step_time_s
-        t_off = t_on + sc.load_pulse_width_s
-        overlap = np.clip(np.minimum(t + tc, t_off) - np.maximum(t, t_on), 0.0, tc) / tc
-        t_load[:] = overlap * sc.load_step_load / ratio       # torque reflects with 1/r
+    ref_a, ref_b, ref_c, t_load, move_end = _references(sc, axis.load.ratio, tc, n)
 
     fp = np.zeros(K.N_F)
     fp[K.F_TC] = tc
@@ -478,10 +490,10 @@ def simulate(axis: Axis, gains: GainSet, scenario: Scenario) -> SimulationResult
         Rate ratios that are not whole numbers, filters at or above Nyquist, too many samples.
     """
     pr = _prepare(axis, gains, scenario)
-    out = np.zeros((pr.n, K.N_CH))
+    out = np.zeros((K.N_CH, pr.n))
     done = K.run_kernel(pr.ad, pr.bd, pr.ac, pr.bc, pr.fp, pr.ip, pr.sos_fb, pr.sos_cmd,
                         pr.ref_a, pr.ref_b, pr.ref_c, pr.t_load, out)
-    return _result(axis, scenario, pr, out[:done], done < pr.n)
+    return _result(axis, scenario, pr, out[:, :done], done < pr.n)
 
 
 def simulate_scenario(axis: Axis, gains: GainSet, scenario, field_prefix: str = "scenario") -> SimulationResult:
@@ -551,8 +563,13 @@ def warm_up() -> float:
     ip[K.I_MODE] = K.MODE_POSITION
     z = np.zeros(4)
     sos = np.zeros((0, 5))
-    K.run_kernel(ad, bd, ad.copy(), bd.copy(), fp, ip, sos, sos.copy(), z, z.copy(), z.copy(), z.copy(),
-                 np.zeros((4, K.N_CH)))
+    # The plant matrices and the references are shared between runs and read-only in a
+    # real run; numba compiles read-only and writable arrays separately, so these are too.
+    plant = (ad, bd, ad.copy(), bd.copy())
+    refs = (z, z.copy(), z.copy(), z.copy())
+    for a in plant + refs:
+        a.flags.writeable = False
+    K.run_kernel(*plant, fp, ip, sos, sos.copy(), *refs, np.zeros((K.N_CH, 4)))
     return time.perf_counter() - t0
 
 
@@ -572,18 +589,18 @@ def _last_outside(t: np.ndarray, err: np.ndarray, band: float, start_s: float) -
 
 
 def _result(axis: Axis, sc: Scenario, pr: _Prepared, o: np.ndarray, diverged: bool) -> SimulationResult:
-    n = o.shape[0]
+    n = o.shape[1]
     tc = float(pr.fp[K.F_TC])
     t = np.arange(n) * tc
     ratio = axis.load.ratio
     vmax = axis.drive.voltage_limit_v
-    sat_v, sat_i, sat_w = (o[:, K.CH_SAT_V] > 0.5, o[:, K.CH_SAT_I] > 0.5, o[:, K.CH_SAT_W] > 0.5)
-    i, wm, thm = o[:, K.CH_I], o[:, K.CH_W_M], o[:, K.CH_TH_M]
+    sat_v, sat_i, sat_w = (o[K.CH_SAT_V] > 0.5, o[K.CH_SAT_I] > 0.5, o[K.CH_SAT_W] > 0.5)
+    i, wm, thm = o[K.CH_I], o[K.CH_W_M], o[K.CH_TH_M]
     th_ref = pr.ref_a[:n] if sc.kind in ("move", "load_step") else np.zeros(n)
     fe = th_ref - thm
     nan = math.nan
 
-    peak_v = float(np.max(o[:, K.CH_V_DEMAND])) / vmax * 100.0 if n else nan
+    peak_v = float(np.max(o[K.CH_V_DEMAND])) / vmax * 100.0 if n else nan
     peak_i = float(np.max(np.abs(i))) if n else nan
     rms_i = float(np.sqrt(np.mean(i * i))) if n else nan
     settle = overshoot = overshoot_load = fe_max = fe_max_m = nan
@@ -644,19 +661,19 @@ def _result(axis: Axis, sc: Scenario, pr: _Prepared, o: np.ndarray, diverged: bo
         speed_dip_rad_s=dip, load_deflection_load=deflection, recovery_time_s=recovery)
     diverged_at = float(t[-1] + tc) if diverged and n else (0.0 if diverged else nan)
     flags = _flags(axis, sc, metrics, t, sat_v, sat_i, sat_w, pr.move_end_s, diverged_at)
-    wl, thl = o[:, K.CH_W_L], o[:, K.CH_TH_L]
+    wl, thl = o[K.CH_W_L], o[K.CH_TH_L]
     return SimulationResult(
-        time_s=t, motor_position_rad=thm.copy(), motor_speed_rad_s=wm.copy(),
+        time_s=t, motor_position_rad=thm, motor_speed_rad_s=wm,
         load_position=thl / ratio, load_speed=wl / ratio,
-        position_reference_rad=th_ref.copy(), position_measured_rad=o[:, K.CH_TH_MEAS].copy(),
-        speed_command_rad_s=o[:, K.CH_W_CMD].copy(), speed_feedback_rad_s=o[:, K.CH_W_FB].copy(),
-        current_command_a=o[:, K.CH_I_CMD].copy(), current_a=i.copy(), current_measured_a=o[:, K.CH_I_MEAS].copy(),
-        voltage_command_v=o[:, K.CH_V_CMD].copy(), voltage_applied_v=o[:, K.CH_V_APPLIED].copy(),
-        voltage_d_v=o[:, K.CH_V_D].copy(), voltage_demand_v=o[:, K.CH_V_DEMAND].copy(),
-        current_error_a=o[:, K.CH_E_I].copy(), speed_error_rad_s=o[:, K.CH_E_W].copy(),
-        position_error_rad=fe.copy() if sc.kind in ("move", "load_step") else o[:, K.CH_E_P].copy(),
+        position_reference_rad=th_ref, position_measured_rad=o[K.CH_TH_MEAS],
+        speed_command_rad_s=o[K.CH_W_CMD], speed_feedback_rad_s=o[K.CH_W_FB],
+        current_command_a=o[K.CH_I_CMD], current_a=i, current_measured_a=o[K.CH_I_MEAS],
+        voltage_command_v=o[K.CH_V_CMD], voltage_applied_v=o[K.CH_V_APPLIED],
+        voltage_d_v=o[K.CH_V_D], voltage_demand_v=o[K.CH_V_DEMAND],
+        current_error_a=o[K.CH_E_I], speed_error_rad_s=o[K.CH_E_W],
+        position_error_rad=fe if sc.kind in ("move", "load_step") else o[K.CH_E_P],
         saturated_voltage=sat_v, saturated_current=sat_i, saturated_speed=sat_w,
-        load_torque_motor_nm=o[:, K.CH_T_LOAD].copy(), friction_power_w=o[:, K.CH_P_FRIC].copy(),
+        load_torque_motor_nm=o[K.CH_T_LOAD], friction_power_w=o[K.CH_P_FRIC],
         metrics=metrics, flags=tuple(flags), diverged_at_s=diverged_at, voltage_limit_v=vmax,
         load_unit=axis.load.position_unit, scenario=sc)
 

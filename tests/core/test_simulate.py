@@ -7,7 +7,10 @@ model equations), "common practice", or the reference implementation used.
 import json
 import math
 import os
+import subprocess
+import sys
 from dataclasses import replace
+from pathlib import Path
 
 import control
 import numpy as np
@@ -399,10 +402,10 @@ def test_numba_kernel_equals_its_python_source():
                                  load_step="0.2 N*m", load_step_time="0.08 s", duration="0.1 s"), ax)
     pr = _prepare(ax, make_gains(ax, notches=(Notch(400.0),)), sc)
     outs = []
-    helpers = ("_pi_step", "_biquads", "_friction")
+    helpers = ("_pi_step", "_biquads", "_at_rest")
     saved = {h: getattr(K, h) for h in helpers}
     for python in (False, True):
-        out = np.zeros((pr.n, K.N_CH))
+        out = np.zeros((K.N_CH, pr.n))
         try:
             if python:
                 for h in helpers:
@@ -415,3 +418,25 @@ def test_numba_kernel_equals_its_python_source():
                 setattr(K, h, saved[h])
         outs.append(out)
     assert_allclose(outs[0], outs[1], rtol=1e-12, atol=1e-12)
+
+
+def test_warm_up_compiles_the_signature_real_runs_use():
+    """The window compiles the kernel in the background with warm_up; a real run must then
+    find its signature compiled (read-only plant and references included), or it would
+    compile again on the GUI thread at the first move (derived: numba types read-only
+    and writable arrays apart). A fresh process, so no other test has compiled it."""
+    code = (
+        "from core import sim_kernel as K\n"
+        "from core.presets import builtin_names, builtin_preset\n"
+        "from core.simulate import simulate_preset_scenario, warm_up\n"
+        "warm_up()\n"
+        "after_warm_up = len(K.run_kernel.signatures)\n"
+        "for name in builtin_names():\n"
+        "    preset = builtin_preset(name)\n"
+        "    for index in range(len(preset.scenarios)):\n"
+        "        simulate_preset_scenario(preset, None, index)\n"
+        "print(after_warm_up, len(K.run_kernel.signatures))\n")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=600,
+                          cwd=Path(__file__).resolve().parents[2])
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.split() == ["1", "1"]
