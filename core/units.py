@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 from functools import lru_cache
 
+import numpy as np
 import pint
 
 from core.errors import InputError
@@ -24,6 +25,21 @@ _REGISTRY.define("count = 1 = counts")
 @lru_cache(maxsize=4096)
 def _parse_text(text: str) -> pint.Quantity:
     return _REGISTRY.Quantity(text)
+
+
+@lru_cache(maxsize=4096)
+def _text_in(text: str, unit: str) -> float:
+    """The value of parsed ``text`` in ``unit``; pint's errors pass through (and are not cached).
+
+    Cached because a scenario or preset is parsed again on every run that uses it (a
+    conversion costs pint some 50 us). A logarithmic unit of zero ("0 dB" as a ratio) is
+    a log of zero inside pint: its -inf is refused by the caller, without numpy's warning.
+    """
+    q = _parse_text(text)
+    if not isinstance(q, pint.Quantity):
+        return float(q)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return float(q.to(unit).magnitude)
 
 
 def parse_quantity(value: object, unit: str, field: str) -> float:
@@ -54,14 +70,11 @@ def parse_quantity(value: object, unit: str, field: str) -> float:
         number = float(value)
     elif isinstance(value, str) and value.strip():
         try:
-            q = _parse_text(value.strip())
+            _parse_text(value.strip())
         except Exception:
             raise InputError(field, value, f"a number or a quantity convertible to {unit}") from None
         try:
-            if isinstance(q, pint.Quantity):
-                number = float(q.to(unit).magnitude)
-            else:
-                number = float(q)
+            number = _text_in(value.strip(), unit)
         except pint.DimensionalityError:
             raise InputError(field, value, f"a quantity convertible to {unit}") from None
         except Exception:
