@@ -27,10 +27,73 @@ def _shade(plot: pg.PlotItem, colour: str) -> pg.PlotDataItem:
     return item
 
 
-def _thin(t: np.ndarray, *ys: np.ndarray, limit: int = 4000):
-    """Every k-th sample so a long run draws about ``limit`` points (peaks kept for the shading)."""
-    k = max(1, len(t) // limit)
-    return (t[::k],) + tuple(y[::k] for y in ys)
+BUCKETS = 1500
+"""Columns a trace is reduced to for drawing: about one per pixel of the plot's width."""
+
+
+def envelope(t: np.ndarray, y: np.ndarray, buckets: int = BUCKETS) -> tuple[np.ndarray, np.ndarray]:
+    """The samples a plot ``buckets`` pixels wide shows: the lowest and the highest of each
+    run of samples that falls in one column, in time order (a run at 16 kHz is some
+    16,000 samples per second, and a single-sample spike must still be drawn).
+
+    Parameters
+    ----------
+    t : ndarray
+        Sample times, s (increasing).
+    y : ndarray
+        The trace, any unit.
+    buckets : int
+        Columns to reduce to; traces of at most two samples per column are drawn whole.
+
+    Returns
+    -------
+    t, y : ndarray
+        At most ``2 * buckets`` + one column's worth of samples.
+    """
+    n = len(t)
+    k = -(-n // buckets)
+    if k <= 2:
+        return t, y
+    m = n // k
+    rows = y[:m * k].reshape(m, k)
+    lo, hi = rows.argmin(axis=1), rows.argmax(axis=1)
+    start = np.arange(m) * k
+    idx = np.empty(2 * m + n - m * k, dtype=np.intp)
+    idx[0:2 * m:2] = start + np.minimum(lo, hi)
+    idx[1:2 * m:2] = start + np.maximum(lo, hi)
+    idx[2 * m:] = np.arange(m * k, n)
+    return t[idx], y[idx]
+
+
+def steps(t: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """A piecewise-constant trace (a saturation band: the limit while saturated, 0 else) as
+    the corners of its steps only: two points per change instead of one per sample.
+
+    Parameters
+    ----------
+    t : ndarray
+        Sample times, s (increasing).
+    y : ndarray
+        The trace, constant between changes, any unit.
+
+    Returns
+    -------
+    t, y : ndarray
+        Start, a vertical edge at each sample where ``y`` changes, and end.
+    """
+    k = np.flatnonzero(y[1:] != y[:-1]) + 1
+    tt, yy = np.empty(2 * len(k) + 2), np.empty(2 * len(k) + 2)
+    tt[0], yy[0], tt[-1], yy[-1] = t[0], y[0], t[-1], y[-1]
+    tt[1:-1:2], yy[1:-1:2] = t[k], y[k - 1]
+    tt[2:-1:2], yy[2:-1:2] = t[k], y[k]
+    return tt, yy
+
+
+def _band(item: pg.PlotCurveItem, t: np.ndarray, y: np.ndarray) -> None:
+    """Shade ``y`` (0 where unsaturated); an empty band is hidden, not filled."""
+    item.setVisible(bool(np.any(y)))
+    if item.isVisible():
+        item.setData(*steps(t, y))
 
 
 class MovePlots:
@@ -76,20 +139,16 @@ class MovePlots:
             self.position.setLabel("left", "Following error", units=unit)
         ref_load = result.position_reference_rad / axis.load.ratio
         err = ref_load - result.load_position
-        sat_i = result.saturated_current.astype(float)
-        sat_v = result.saturated_voltage.astype(float)
-        tt, err, i_cmd, i_act, v_cmd, v_dem, sat_i, sat_v = _thin(
-            t, err, result.current_command_a, result.current_a, result.voltage_command_v,
-            result.voltage_demand_v, sat_i, sat_v)
         m = result.metrics
         i_lim, v_lim = m.current_limit_a, result.voltage_limit_v
-        self.error_curve.setData(tt, err)
-        self.i_cmd.setData(tt, i_cmd)
-        self.i_act.setData(tt, i_act)
-        self.v_cmd.setData(tt, v_cmd)
-        self.v_demand.setData(tt, v_dem)
-        self.i_shade.setData(tt, np.where(i_cmd >= 0, 1.0, -1.0) * i_lim * sat_i)
-        self.v_shade.setData(tt, np.where(v_dem >= 0, 1.0, -1.0) * v_lim * sat_v)
+        i_cmd, v_dem = result.current_command_a, result.voltage_demand_v
+        self.error_curve.setData(*envelope(t, err))
+        self.i_cmd.setData(*envelope(t, i_cmd))
+        self.i_act.setData(*envelope(t, result.current_a))
+        self.v_cmd.setData(*envelope(t, result.voltage_command_v))
+        self.v_demand.setData(*envelope(t, v_dem))
+        _band(self.i_shade, t, np.where(i_cmd >= 0, i_lim, -i_lim) * result.saturated_current)
+        _band(self.v_shade, t, np.where(v_dem >= 0, v_lim, -v_lim) * result.saturated_voltage)
         for line, y in zip(self.i_limits, (i_lim, -i_lim)):
             line.setValue(y)
         cont = m.continuous_current_a
@@ -106,7 +165,7 @@ class MovePlots:
                              f"V-sat {m.time_voltage_saturated_s * 1e3:.3g} ms")
         self.current.vb.setBorder(SEVERITY_BORDER["error"] if m.time_current_saturated_s > 0 else NO_BORDER)
         self.voltage.vb.setBorder(SEVERITY_BORDER["error"] if m.time_voltage_saturated_s > 0 else NO_BORDER)
-        self._ranges = (float(tt[-1]), err, max(i_lim, float(np.max(np.abs(i_act)))),
+        self._ranges = (float(t[-1]), err, max(i_lim, float(np.max(np.abs(result.current_a)))),
                         max(v_lim, float(np.max(np.abs(v_dem)))))
 
     def compare(self, names, simulations, axis) -> None:
@@ -130,9 +189,8 @@ class MovePlots:
                     s.append(None)
                 continue
             err = result.position_reference_rad / axis.load.ratio - result.load_position
-            tt, err, i_act, v_cmd = _thin(result.time_s, err, result.current_a, result.voltage_command_v)
-            for s, y in zip(series, (err, i_act, v_cmd)):
-                s.append((tt, y))
+            for s, y in zip(series, (err, result.current_a, result.voltage_command_v)):
+                s.append(envelope(result.time_s, y))
         for overlay, data in zip(self.overlays, series):
             overlay.show(names, data)
 

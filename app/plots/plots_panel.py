@@ -106,6 +106,7 @@ class PlotsPanel(QTabWidget):
         self.selected = None
         self.update_count = 0
         self._shown: dict = {}
+        self._loops_due = None
         self._disturbance_due = None
         self.currentChanged.connect(self._tab_changed)
         for view in (self.loops_view, self.disturbance_view):
@@ -139,24 +140,36 @@ class PlotsPanel(QTabWidget):
     def show_results(self, analysis) -> None:
         """Feed the plots the new result (setData only) and colour what the flags point at.
 
-        A loop's plots are left as they are when nothing it depends on changed (dragging
-        a speed gain leaves the current loop's step and Bode plots alone), so Qt does not
-        repaint them either; the disturbance plots are fed when their tab is shown.
+        The loop plots and the disturbance plots are fed when their tab is shown (a drag
+        watched on the move tab does not feed nine hidden plots), and a loop's plots are
+        left as they are when nothing it depends on changed (dragging a speed gain leaves
+        the current loop's step and Bode plots alone), so Qt does not repaint them either.
         """
         self.update_count += 1
         axis = self.session.axis
-        shown = _loop_inputs(axis, self.session.gains)
+        self._loops_due = (analysis, axis, self.session.gains)
+        self._disturbance_due = (analysis, axis)
+        if self.currentWidget() is self.loops_view:
+            self._show_loops()
+        elif self.currentWidget() is self.disturbance_view:
+            self._show_disturbance()
+        self._alerts(analysis.flags)
+
+    def _show_loops(self) -> None:
+        if self._loops_due is None:
+            return
+        analysis, axis, gains = self._loops_due
+        self._loops_due = None
+        shown = _loop_inputs(axis, gains)
         for loop in LOOPS:
             if shown[loop] != self._shown.get(loop):
                 self.steps[loop].update(analysis)
                 self.bode[loop].update(analysis, axis)
         self._shown = shown
-        self._disturbance_due = (analysis, axis)
-        if self.currentWidget() is self.disturbance_view:
-            self._show_disturbance()
-        self._alerts(analysis.flags)
         if not self.held:
-            self.fit()
+            for loop in LOOPS:
+                self.steps[loop].fit()
+                self.bode[loop].fit()
 
     def _show_disturbance(self) -> None:
         if self._disturbance_due is None:
@@ -170,7 +183,9 @@ class PlotsPanel(QTabWidget):
             self.stiffness.fit()
 
     def _tab_changed(self, _index: int) -> None:
-        if self.currentWidget() is self.disturbance_view:
+        if self.currentWidget() is self.loops_view:
+            self._show_loops()
+        elif self.currentWidget() is self.disturbance_view:
             self._show_disturbance()
 
     def show_comparison(self, comparison) -> None:

@@ -65,6 +65,23 @@ def test_the_disturbance_plots_follow_when_their_tab_is_shown(window):
     np.testing.assert_array_equal(shown, s.analysis.load_step.speed_rad_s)
 
 
+def test_the_loop_plots_follow_when_their_tab_is_shown(window):
+    """A gain moved while the move tab is shown leaves the hidden loop plots as they were;
+    showing the loop tab brings them to the latest result."""
+    s, plots = window.session, window.plots
+    plots.setCurrentWidget(plots.move_page)
+    before = plots.bode["speed"].mag_curve.yData
+    slider = window.gains_panel.controls["speed.kp"].slider
+    slider.setValue(slider.value() + 8)
+    s.flush()
+    assert plots.bode["speed"].mag_curve.yData is before
+    plots.setCurrentWidget(plots.loops_view)
+    shown = plots.bode["speed"].mag_curve.yData
+    assert shown is not before
+    expected = 20 * np.log10(np.abs(s.analysis.frequency.open_loop["speed"]))
+    np.testing.assert_allclose(shown, expected, rtol=1e-12)
+
+
 def _loops_view_on_screen(window):
     """The loop view's pixels as the window last painted them (the backing store), which is
     where a stale partial repaint or a stale cached pixmap would show."""
