@@ -16,6 +16,7 @@ is printed too, at the start and the end: a large change between the two means t
 machine's speed changed during the run.
 
     QT_QPA_PLATFORM=offscreen python bench/bench_window.py [--loop speed.kp | all] [--moves 200]
+                                                           [--view loops | disturbance | move]
 """
 
 from __future__ import annotations
@@ -161,6 +162,8 @@ def main(argv=None) -> int:
     parser.add_argument("--moves", type=int, default=200)
     parser.add_argument("--loop", default="speed.kp",
                         help="gain slider to drive (e.g. current.kp), or 'all' for every gain slider")
+    parser.add_argument("--view", choices=("loops", "disturbance", "move"), default="loops",
+                        help="the response tab shown while dragging (the move tab simulates on every move)")
     args = parser.parse_args(argv)
 
     from app.window import freeze_start_up_objects, main_window
@@ -173,13 +176,18 @@ def main(argv=None) -> int:
     app = QApplication.instance()
     _until_idle(app, window.session, -1, time.perf_counter() + 10.0)
     freeze_start_up_objects()  # as app.window.run does once the window is up
+    plots = window.plots
+    plots.setCurrentWidget({"loops": plots.loops_view, "disturbance": plots.disturbance_view,
+                            "move": getattr(plots, "move_page", None)}[args.view])
+    _until_idle(app, window.session, -1, time.perf_counter() + 10.0)
     paths = list(window.gains_panel.controls) if args.loop == "all" else [args.loop]
     unknown = [p for p in paths if p not in window.gains_panel.controls]
     if unknown:
         parser.error(f"--loop {unknown[0]!r}: expected 'all' or one of {', '.join(window.gains_panel.controls)}")
 
     print(f"window: 1600x1000 offscreen, PySide6 {__import__('PySide6').__version__}, "
-          f"pyqtgraph {__import__('pyqtgraph').__version__}; {args.moves} moves per slider")
+          f"pyqtgraph {__import__('pyqtgraph').__version__}; {args.moves} moves per slider, "
+          f"{args.view} tab shown (the reference draws the loop plots)")
     repaint = statistics.median(time_repaints(window, 50))
     print(f"full repaint of the window, nothing recomputed: median {repaint:.2f} ms")
     plain = PlainPlots(window.plots.loops_view.size())
