@@ -85,6 +85,8 @@ class FlagsPanel(QWidget):
         self.table.setFixedHeight(24 * len(FIGURES) + self.table.horizontalHeader().sizeHint().height() + 4)
         layout.addWidget(self.table)
         self._flags = None
+        self._status_colour = None
+        self._shape = None
         self.flags: tuple = ()
         self.sim_flags: tuple = ()
         self.sim_title = ""
@@ -123,44 +125,63 @@ class FlagsPanel(QWidget):
         if analysis.flags == self._flags:
             return
         self._flags = self.flags = analysis.flags
-        self._worst = analysis.worst_severity
         self._render()
 
     def _render(self) -> None:
-        self.list.blockSignals(True)
-        self.list.clear()
+        """Status line and list from the current findings. While a gain is dragged the same
+        findings come back with other numbers: the rows are then rewritten in place (the
+        selection stays, nothing is laid out anew), and the list is rebuilt only when its
+        rows change."""
         flags = self.flags
         if self.all_pass:
-            self.status.setText("✔  All checks pass: every loop meets its margin, separation and sizing targets.")
-            self.status.setStyleSheet(f"color: {SEVERITY_COLOURS['ok']}; font-weight: bold; padding: 4px;")
+            status = "✔  All checks pass: every loop meets its margin, separation and sizing targets."
+            colour = SEVERITY_COLOURS["ok"]
         else:
             both = flags + tuple(f for f in self.sim_flags if f.severity in ("error", "warning"))
             counts = {s: sum(f.severity == s for f in both) for s in ("error", "warning")}
             words = ", ".join(f"{n} {s}{'s' if n > 1 else ''}" for s, n in counts.items() if n)
-            worst = "error" if counts["error"] else "warning"
-            self.status.setText(f"▲  {words} — select one to see where it shows.")
-            self.status.setStyleSheet(f"color: {SEVERITY_COLOURS[worst]}; font-weight: bold; padding: 4px;")
+            colour = SEVERITY_COLOURS["error" if counts["error"] else "warning"]
+            status = f"▲  {words} — select one to see where it shows."
+        if self.status.text() != status:
+            self.status.setText(status)
+        if colour != self._status_colour:
+            self._status_colour = colour
+            self.status.setStyleSheet(f"color: {colour}; font-weight: bold; padding: 4px;")
+        rows = []
         for loop in LOOPS + ("axis",):
             mine = [f for f in flags if f.loop == loop]
             if mine:
-                self._group(LOOP_TITLES.get(loop, loop), LOOP_COLOURS.get(loop, "#444"), mine)
+                rows += self._group(LOOP_TITLES.get(loop, loop), LOOP_COLOURS.get(loop, "#444"), mine)
         if self.sim_flags:
-            self._group(self.sim_title, LOOP_COLOURS["axis"], self.sim_flags)
+            rows += self._group(self.sim_title, LOOP_COLOURS["axis"], self.sim_flags)
+        self.list.blockSignals(True)
+        shape = [(colour, flag is None) for _, colour, flag in rows]
+        if shape != self._shape:
+            self._shape = shape
+            self.list.clear()
+            for text, colour, flag in rows:
+                item = QListWidgetItem(text)
+                item.setForeground(QBrush(QColor(colour)))
+                if flag is None:
+                    font = QFont(item.font())
+                    font.setBold(True)
+                    item.setFont(font)
+                    item.setFlags(Qt.ItemFlag.NoItemFlags)
+                self.list.addItem(item)
+        for row, (text, _colour, flag) in enumerate(rows):
+            item = self.list.item(row)
+            if item.text() != text:
+                item.setText(text)
+            if flag is not None:
+                item.setData(FLAG_ROLE, flag)
         self.list.blockSignals(False)
 
-    def _group(self, title: str, colour: str, flags) -> None:
-        head = QListWidgetItem(title)
-        font = QFont(head.font())
-        font.setBold(True)
-        head.setFont(font)
-        head.setForeground(QBrush(QColor(colour)))
-        head.setFlags(Qt.ItemFlag.NoItemFlags)
-        self.list.addItem(head)
-        for flag in flags:
-            item = QListWidgetItem(f"{SEVERITY_WORDS.get(flag.severity, flag.severity)}  {flag.message}")
-            item.setForeground(QBrush(QColor(SEVERITY_COLOURS.get(flag.severity, "#444"))))
-            item.setData(FLAG_ROLE, flag)
-            self.list.addItem(item)
+    @staticmethod
+    def _group(title: str, colour: str, flags) -> list[tuple[str, str, Flag | None]]:
+        """A heading row (no flag) and one row per finding: (text, colour, flag)."""
+        return [(title, colour, None)] + [
+            (f"{SEVERITY_WORDS.get(f.severity, f.severity)}  {f.message}", SEVERITY_COLOURS.get(f.severity, "#444"), f)
+            for f in flags]
 
     def show_error(self, text: str) -> None:
         self.status.setToolTip(text)
