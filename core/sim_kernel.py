@@ -128,8 +128,8 @@ def run_kernel(ad, bd, ac, bc, fp, ip, sos_fb, sos_cmd, ref_a, ref_b, ref_c, t_l
 
     # Ring buffers of held controller outputs, one entry per current-loop sample. A ring of
     # length d + 1 written at k % (d + 1) holds the value of sample k - d in the slot after
-    # the one written; the slots and the loop phases are kept as counters, because an
-    # integer remainder per ring per sample was most of the kernel's time.
+    # the one written; the slots and the loop phases are kept as counters, because the
+    # integer remainders per sample were about a quarter of the kernel's time.
     lv = vdel + 2
     lw = wdel + 1
     li = idel + 1

@@ -155,20 +155,20 @@ class FlagsPanel(QWidget):
         if self.sim_flags:
             rows += self._group(self.sim_title, LOOP_COLOURS["axis"], self.sim_flags)
         self.list.blockSignals(True)
-        shape = [(colour, flag is None) for _, colour, flag in rows]
+        shape = [(ink, flag is None) for _, ink, flag in rows]
         if shape != self._shape:
             self._shape = shape
             self.list.clear()
-            for text, colour, flag in rows:
+            for text, ink, flag in rows:
                 item = QListWidgetItem(text)
-                item.setForeground(QBrush(QColor(colour)))
+                item.setForeground(QBrush(QColor(ink)))
                 if flag is None:
                     font = QFont(item.font())
                     font.setBold(True)
                     item.setFont(font)
                     item.setFlags(Qt.ItemFlag.NoItemFlags)
                 self.list.addItem(item)
-        for row, (text, _colour, flag) in enumerate(rows):
+        for row, (text, _ink, flag) in enumerate(rows):
             item = self.list.item(row)
             if item.text() != text:
                 item.setText(text)

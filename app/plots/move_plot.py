@@ -91,8 +91,9 @@ def steps(t: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def _band(item: pg.PlotCurveItem, t: np.ndarray, y: np.ndarray) -> None:
     """Shade ``y`` (0 where unsaturated); an empty band is hidden, not filled."""
-    item.setVisible(bool(np.any(y)))
-    if item.isVisible():
+    shown = bool(np.any(y))
+    item.setVisible(shown)
+    if shown:
         item.setData(*steps(t, y))
 
 
